@@ -3,8 +3,10 @@ package cli
 import (
 	"context"
 	"flag"
+	"fmt"
 	"io"
 	"os"
+	"strconv"
 	"strings"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
@@ -38,6 +40,9 @@ func RunSynth(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	default:
 		return usagef("--handedness: %q is not right or left", *hand)
 	}
+	if cfg.OmitQuaternions {
+		cfg.IMU = true
+	}
 	c, _, err := synth.Generate(cfg)
 	if err != nil {
 		return err
@@ -56,4 +61,61 @@ func RunSynth(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		return f.Close()
 	}
 	return encode.WriteCaptureCSV(w, c)
+}
+
+// registerSynthFaults adds the flags that shape the model golfer and the
+// faults a capture may carry.
+func registerSynthFaults(fs *flag.FlagSet, cfg *synth.Config) {
+	fs.IntVar(&cfg.Swings, "swings", 0, "number of full swings (default 1)")
+	fs.IntVar(&cfg.Waggles, "waggles", 0, "waggles before the first swing (to be rejected by the analysis)")
+	fs.IntVar(&cfg.HalfSwings, "half-swings", 0, "half swings before the first full swing (to be rejected)")
+	fs.Float64Var(&cfg.Tempo, "tempo", 0, "backswing : downswing time ratio (default 3)")
+	fs.Float64Var(&cfg.Downswing, "downswing-s", 0, "top-to-impact time in s (default 0.25)")
+	fs.Float64Var(&cfg.ThoraxFlexionDeg, "thorax-flexion-deg", 0, "thorax forward bend at address in degrees (default 38)")
+	fs.Float64Var(&cfg.TargetHeadingDeg, "target-heading-deg", 0, "direction toward the target in the world, degrees from +x about +z")
+	fs.BoolVar(&cfg.LateThorax, "late-thorax", false, "fault: the thorax reverses late and peaks after the lead arm")
+	fs.BoolVar(&cfg.EarlyRelease, "early-release", false, "fault: the club peaks early, before the lead arm and hand")
+	fs.IntVar(&cfg.Dropouts, "dropouts", 0, "number of gaps cut into random tracks")
+	fs.Float64Var(&cfg.DropoutMs, "dropout-ms", 0, "length of each gap in ms (default 20)")
+	fs.Float64Var(&cfg.JitterMs, "jitter-ms", 0, "standard deviation of sample-time jitter in ms")
+	fs.Float64Var(&cfg.NoiseDeg, "noise-deg", 0, "standard deviation of orientation noise in degrees")
+	fs.Float64Var(&cfg.MountingDeg, "mounting-deg", 0, "turn each sensor on its segment by this angle about a random axis")
+	fs.BoolVar(&cfg.IMU, "imu", false, "add gyroscope and accelerometer columns")
+	fs.BoolVar(&cfg.Magnetometer, "mag", false, "add magnetometer columns")
+	fs.BoolVar(&cfg.OmitQuaternions, "raw", false, "leave out the quaternion columns (raw IMU tracks; implies --imu)")
+	fs.Func("segments", "comma-separated subset of segments to write (default all ten)", func(s string) error {
+		for _, name := range strings.Split(s, ",") {
+			seg, ok := segmentByName(strings.TrimSpace(name))
+			if !ok {
+				return fmt.Errorf("unknown segment %q", name)
+			}
+			cfg.Segments = append(cfg.Segments, seg)
+		}
+		return nil
+	})
+	fs.Func("segment-rate", "SEGMENT=HZ: a different rate for one segment (repeatable)", func(s string) error {
+		name, hz, ok := strings.Cut(s, "=")
+		seg, known := segmentByName(strings.TrimSpace(name))
+		if !ok || !known {
+			return fmt.Errorf("%q is not SEGMENT=HZ with a known segment", s)
+		}
+		v, err := strconv.ParseFloat(hz, 64)
+		if err != nil || !(v > 0) {
+			return fmt.Errorf("%q: rate must be a positive number", s)
+		}
+		if cfg.SegmentRates == nil {
+			cfg.SegmentRates = map[kinchainv1.Segment]float64{}
+		}
+		cfg.SegmentRates[seg] = v
+		return nil
+	})
+}
+
+// segmentByName maps a lower-case segment name ("lead_hand") to its value.
+func segmentByName(name string) (kinchainv1.Segment, bool) {
+	v, ok := kinchainv1.Segment_value["SEGMENT_"+strings.ToUpper(name)]
+	if !ok || v == 0 {
+		return 0, false
+	}
+	return kinchainv1.Segment(v), true
 }

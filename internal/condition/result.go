@@ -40,6 +40,12 @@ type Segment struct {
 	Accel []r3.Vec
 	// Quality describes the input track.
 	Quality *kinchainv1.TrackQuality
+	// Mounting is the sensor frame's orientation in the segment frame that
+	// was applied (q_segment = q_sensor ⊗ Mounting*): the track's explicit
+	// mounting, the neutral-pose calibration, or the identity.
+	Mounting quat.Number
+	// Calibrated reports that Mounting came from the neutral-pose window.
+	Calibrated bool
 }
 
 // Result is a conditioned capture.

@@ -107,7 +107,10 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 		return nil, err
 	}
 
-	kin := kinematics.Compute(cond, kinematicsOptions(opts))
+	kin, err := kinematics.Compute(cond, kinematicsOptions(opts))
+	if err != nil {
+		return nil, err
+	}
 	warnings = append(warnings, kin.Warnings...)
 
 	sopt := swing.Options{Handedness: c.Handedness}
@@ -130,13 +133,14 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 	}
 	for i := range kin.Segments {
 		ks := &kin.Segments[i]
-		peak, idx := kinematics.PeakSpeed(ks)
 		sk := &kinchainv1.SegmentKinematics{
-			Segment:          ks.Segment,
-			SampleRateHz:     ks.SourceRate,
-			PeakSpeedDegPerS: deg(peak),
-			PeakTimeS:        idx,
-			CutoffHz:         ks.Cutoff,
+			Segment:      ks.Segment,
+			SampleRateHz: ks.SourceRate,
+			CutoffHz:     ks.Cutoff,
+		}
+		if p, ok := kinematics.PeakSpeedIn(ks, 0, len(ks.Speed)); ok {
+			sk.PeakSpeedDegPerS = deg(p.Value)
+			sk.PeakTimeS = p.Time(kin.Grid)
 		}
 		if opts.GetIncludeSeries() {
 			sk.Series = series(kin.Grid, ks)

@@ -13,13 +13,16 @@ type Segment struct {
 	Segment kinchainv1.Segment
 	// Q is the segment orientation (segment → world), from conditioning.
 	Q []quat.Number
-	// Valid is as in condition.Segment; nil means all valid.
+	// Valid is as in condition.Segment (nil means all valid), with valid
+	// samples that have no valid neighbour (no angular velocity) also marked
+	// invalid. Omega, OmegaBody and Speed are zero at invalid samples.
 	Valid []bool
 	// Omega is the filtered angular velocity in the world frame, rad/s.
 	Omega []r3.Vec
 	// OmegaBody is the filtered angular velocity in the segment frame, rad/s.
 	OmegaBody []r3.Vec
-	// Speed is the scalar speed per the selected definition, rad/s.
+	// Speed is the scalar speed per the selected definition, rad/s, from the
+	// filtered angular velocity.
 	Speed []float64
 	// Accel is the accelerometer reading in the segment frame, m/s², or nil.
 	Accel []r3.Vec
@@ -34,6 +37,8 @@ type Result struct {
 	Grid     condition.Grid
 	Speed    kinchainv1.SpeedDefinition
 	Segments []Segment
+	// Warnings holds this stage's warnings only; the conditioning warnings
+	// stay in condition.Result.
 	Warnings []*kinchainv1.Warning
 }
 

@@ -1,0 +1,545 @@
+package stream
+
+import (
+	"math"
+
+	"gonum.org/v1/gonum/num/quat"
+	"gonum.org/v1/gonum/spatial/r3"
+
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/rot"
+	"github.com/kinchain/kinchain/internal/swing"
+)
+
+// Parameters of the causal detector and of the analysis window. All are our
+// choices (see NOTES-stream.md); the still, onset, merge and finish levels
+// are the swing package's (swing.StillFloor and the rest), so that the live
+// events and the batch analysis agree on what "still" and "finish" mean.
+const (
+	// PreRoll is how much stream time before a swing's first movement its
+	// analysis window starts, s. The batch analysis looks 0.3 s before the
+	// movement for the address and needs the still level of a quiet
+	// stretch; 1 s covers both and the zero-phase filter's start-up.
+	PreRoll = 1.0
+	// PostRoll is how much stream time after the finish is decided the
+	// window ends (and the report waits), s: room for the zero-phase
+	// filter's edge effects past the batch finish search.
+	PostRoll = 0.5
+	// MaxBackswing bounds the time from a movement's start to its top, s.
+	MaxBackswing = 4.0
+	// MaxDownswing bounds the time from the top to impact, s.
+	MaxDownswing = 1.5
+	// MaxFollowThrough bounds the time from impact to the finish, s; a
+	// swing whose finish is not seen by then is reported without one.
+	MaxFollowThrough = 2.5
+	// PlaneAngle is how far the driver's pointer must have turned from its
+	// address direction before the live swing plane is fixed, rad (20°).
+	PlaneAngle = 20 * math.Pi / 180
+	// TopConfirmAngle is how far the driver must have turned back toward
+	// the target past its extreme before the top is reported, rad (1°).
+	TopConfirmAngle = 1 * math.Pi / 180
+)
+
+// criteria are a driver's swing criteria: the backswing amplitude in its
+// swing plane (rad) and the peak speed (rad/s) a full swing reaches. They
+// are the values of the swing package's limitsFor, which it does not export
+// (kept equal by hand; see NOTES-stream.md).
+type criteria struct{ amplitude, peak float64 }
+
+func criteriaFor(d kinchainv1.Segment) criteria {
+	const deg = math.Pi / 180
+	switch d {
+	case kinchainv1.Segment_SEGMENT_CLUB:
+		return criteria{150 * deg, 700 * deg}
+	case kinchainv1.Segment_SEGMENT_LEAD_HAND:
+		return criteria{110 * deg, 500 * deg}
+	case kinchainv1.Segment_SEGMENT_LEAD_FOREARM:
+		return criteria{90 * deg, 400 * deg}
+	default:
+		return criteria{75 * deg, 300 * deg}
+	}
+}
+
+// driverOrder lists the segments that can drive detection, most distal
+// first, as in the swing package: the first one the header declares is the
+// driver.
+var driverOrder = []kinchainv1.Segment{
+	kinchainv1.Segment_SEGMENT_CLUB, kinchainv1.Segment_SEGMENT_LEAD_HAND,
+	kinchainv1.Segment_SEGMENT_LEAD_FOREARM, kinchainv1.Segment_SEGMENT_LEAD_UPPER_ARM,
+}
+
+// pointer is the segment-frame axis whose direction the swing angle
+// follows for limbs and the club: the distal direction −z (the swing
+// package's pointerAxis).
+var pointer = r3.Vec{Z: -1}
+
+// phase is the detector's state.
+type phase uint8
+
+const (
+	phIdle   phase = iota // no movement, or movement that is not (yet) a swing
+	phBack                // moving: backswing candidate, top not yet decided
+	phDown                // top decided: downswing, impact not yet decided
+	phFollow              // impact decided: follow-through, finish level not reached
+	phSettle              // finish level reached, waiting for the speed to stop falling
+)
+
+// decisionKind says what a decision is.
+type decisionKind uint8
+
+const (
+	decEvent    decisionKind = iota // an event of the current swing
+	decComplete                     // the swing is over: analyse [t0, t1]
+)
+
+// decision is one output of the detector.
+type decision struct {
+	kind  decisionKind
+	event kinchainv1.EventKind
+	t, at float64 // event time; stream time of the deciding sample
+	// For decComplete: the analysis window and the live impact time.
+	t0, t1, impact float64
+	finished       bool
+}
+
+// crossingAt returns the fraction u in [0, 1] at which the line from y0 to
+// y1 passes level (linear interpolation of a sampled crossing), as the
+// swing package interpolates its crossings.
+func crossingAt(y0, y1, level float64) float64 {
+	if y1 == y0 {
+		return 0
+	}
+	return math.Max(0, math.Min(1, (level-y0)/(y1-y0)))
+}
+
+// wrapAngle returns x wrapped into (−π, π].
+func wrapAngle(x float64) float64 {
+	x = math.Mod(x, 2*math.Pi)
+	if x > math.Pi {
+		x -= 2 * math.Pi
+	} else if x <= -math.Pi {
+		x += 2 * math.Pi
+	}
+	return x
+}
+
+// armCrossing is a moment the lead upper arm's long axis passed
+// horizontal.
+type armCrossing struct {
+	t  float64
+	up bool // going up (backswing), else coming down
+}
+
+// armHistory is the number of arm crossings remembered.
+const armHistory = 8
+
+// detector is the causal swing detector of one stream. It runs on the
+// driver's samples one at a time, in O(1) time and memory per sample, and
+// appends its decisions to out.
+//
+// Signals: the driver's angular velocity by backward difference of its
+// orientation, ω_k = 2·log(q_k ⊗ q_{k−1}*)/Δt (world frame; for raw
+// inertial tracks the gyroscope, with the orientation integrated from it),
+// through the causal low-pass; its magnitude v is the speed. φ is the
+// in-plane angle of the driver's pointer (its −z axis) from its address
+// direction, in the plane fixed by the first PlaneAngle of movement and
+// signed so that the backswing is negative; its rate dφ/dt is the backward
+// difference of φ through the same low-pass. Times derived from filtered
+// signals are moved earlier by the filter's group delay tau; impact comes
+// from the unfiltered φ and needs no correction.
+type detector struct {
+	seg      kinchainv1.Segment
+	crit     criteria
+	gyroOnly bool
+	axis     r3.Vec // the pointer in the sensor frame
+	gapBound float64
+	lpW, lpR causal
+	filtered bool
+	tau      float64 // group delay of the low-pass at 0 Hz, s
+
+	have  bool
+	tPrev float64
+	qPrev quat.Number
+	gPrev r3.Vec
+	vPrev float64
+
+	// Quiet level: the lowest mean speed over any QuietWindow so far.
+	qwin          []float64
+	qpos, qcnt    int
+	qsum, quiet   float64
+	still, onset  float64
+	lastStill     float64
+	qStill        quat.Number
+	lastStillSeen bool
+
+	ph         phase
+	start      float64 // first moving sample of the candidate
+	lastMoving float64
+	p0, e1, e2 r3.Vec
+	planeOK    bool
+	phi        float64
+	rate       float64
+	phiMin     float64
+	peak       float64
+
+	inRun              bool
+	runTake, runAddr   float64
+	topTent            bool
+	topT               float64
+	takeaway, address  float64
+	impact             float64
+	impactKnown        bool
+	impactSent         bool
+	settleFrom         float64
+	armUpSent, armDown bool
+
+	arm  [armHistory]armCrossing
+	narm int // crossings recorded (the ring keeps the last armHistory)
+
+	out []decision
+}
+
+// newDetector returns a detector for driver segment seg at the nominal rate
+// Hz. axis is the pointer in the sensor frame; cutoff the low-pass cutoff,
+// Hz (0: unfiltered).
+func newDetector(seg kinchainv1.Segment, rate, cutoff float64, axis r3.Vec, gyroOnly bool, gapBound float64) (*detector, error) {
+	d := &detector{seg: seg, crit: criteriaFor(seg), gyroOnly: gyroOnly, axis: axis, gapBound: gapBound,
+		quiet: math.Inf(1)}
+	if cutoff > 0 {
+		var err error
+		if d.lpW, err = newCausal(2, cutoff, rate); err != nil {
+			return nil, err
+		}
+		d.lpR = d.lpW
+		d.filtered = true
+		d.tau = groupDelay(&d.lpW) / rate
+	}
+	d.qwin = make([]float64, max(3, int(math.Round(swing.QuietWindow*rate))))
+	d.levels()
+	return d, nil
+}
+
+// groupDelay returns the group delay at 0 Hz of f's cascade, samples: for
+// each section B(z)/A(z), Σk·b_k/Σb_k − Σk·a_k/Σa_k (the derivative of the
+// phase of a rational transfer function at ω = 0).
+func groupDelay(f *causal) float64 {
+	g := 0.0
+	for i := 0; i < f.n; i++ {
+		s := f.sec[i]
+		g += (s[1]+2*s[2])/(s[0]+s[1]+s[2]) - (s[4]+2*s[5])/(s[3]+s[4]+s[5])
+	}
+	return g
+}
+
+// levels sets the still and onset levels from the quiet level, as the
+// swing package does (swing.StillFloor, StillFactor, OnsetFloor,
+// OnsetFactor); before a full quiet window the floors apply.
+func (d *detector) levels() {
+	q := d.quiet
+	if math.IsInf(q, 1) {
+		q = 0
+	}
+	d.still = math.Max(swing.StillFloor, swing.StillFactor*q)
+	d.onset = math.Max(swing.OnsetFloor, swing.OnsetFactor*q)
+}
+
+// setAxis changes the pointer (a new mounting); it takes effect at the next
+// candidate.
+func (d *detector) setAxis(axis r3.Vec) {
+	if d.ph == phIdle {
+		d.axis = axis
+	}
+}
+
+// emit records an event decision.
+func (d *detector) emit(k kinchainv1.EventKind, t, at float64) {
+	d.out = append(d.out, decision{kind: decEvent, event: k, t: t, at: at})
+}
+
+// abandon ends the candidate without a swing.
+func (d *detector) abandon(t float64, q quat.Number) {
+	d.ph = phIdle
+	d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+}
+
+// complete ends the swing and asks for its analysis.
+func (d *detector) complete(t float64, finished bool) {
+	d.out = append(d.out, decision{kind: decComplete, t0: d.start - PreRoll, t1: t + PostRoll,
+		impact: d.impact, finished: finished, at: t})
+	d.ph = phIdle
+}
+
+// stepGyro feeds one sample of a raw inertial driver: the gyroscope g in
+// the sensor frame, rad/s. The orientation is integrated from it
+// (q_k = q_{k−1} ⊗ exp(ḡ·Δt/2), ḡ the mean of the two readings) in a frame
+// fixed at the first sample; only orientation changes matter to the
+// detector.
+func (d *detector) stepGyro(t float64, g r3.Vec) {
+	if !d.have {
+		d.gPrev = g
+		d.step(t, rot.Identity)
+		return
+	}
+	dt := t - d.tPrev
+	avg := r3.Scale(0.5, r3.Add(g, d.gPrev))
+	d.gPrev = g
+	q, _ := rot.Normalize(rot.Mul(d.qPrev, rot.FromRotVec(r3.Scale(dt, avg))))
+	d.step(t, q)
+}
+
+// step feeds one sample of the driver: time t s, orientation q (unit,
+// sensor frame → world).
+func (d *detector) step(t float64, q quat.Number) {
+	if !d.have {
+		d.have, d.tPrev, d.qPrev = true, t, q
+		d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+		return
+	}
+	dt := t - d.tPrev
+	if dt > d.gapBound {
+		// A gap: the difference across it is no angular velocity. Restart
+		// the filters; a backswing candidate does not survive it.
+		d.lpW.reset()
+		d.lpR.reset()
+		d.tPrev, d.qPrev = t, q
+		if d.ph == phBack {
+			d.abandon(t, q)
+		}
+		return
+	}
+	w := rot.ToRotVec(rot.Mul(q, rot.Conj(d.qPrev)))
+	x := [3]float64{w.X / dt, w.Y / dt, w.Z / dt}
+	if d.filtered {
+		d.lpW.step(&x, 3)
+	}
+	v := math.Sqrt(x[0]*x[0] + x[1]*x[1] + x[2]*x[2])
+	d.quietUpdate(v)
+	p := rot.Rotate(q, d.axis)
+	tPrev, vPrev := d.tPrev, d.vPrev
+	d.tPrev, d.qPrev, d.vPrev = t, q, v
+
+	if d.ph == phIdle {
+		if v <= d.still {
+			d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+			return
+		}
+		d.begin(t, v)
+	}
+	phiPrev, ratePrev := d.phi, d.rate
+	d.angle(p)
+	r := [3]float64{(d.phi - phiPrev) / dt}
+	if d.filtered {
+		d.lpR.step(&r, 1)
+	}
+	d.rate = r[0]
+	d.phiMin = math.Min(d.phiMin, d.phi)
+	d.peak = math.Max(d.peak, v)
+	if v > d.still {
+		d.lastMoving = t
+	}
+
+	switch d.ph {
+	case phBack:
+		d.backswing(t, tPrev, v, vPrev, ratePrev, q)
+	case phDown:
+		if phiPrev < 0 && d.phi >= 0 {
+			d.impact = tPrev + dt*crossingAt(phiPrev, d.phi, 0)
+			d.impactKnown = true
+			d.ph = phFollow
+			if d.peak >= d.crit.peak {
+				d.impactSent = true
+				d.emit(kinchainv1.EventKind_EVENT_KIND_IMPACT, d.impact, t)
+			}
+			d.armCheck(t)
+			return
+		}
+		d.armCheck(t)
+		if t-d.topT > MaxDownswing {
+			d.abandon(t, q)
+		}
+	case phFollow:
+		if !d.impactSent && d.peak >= d.crit.peak {
+			d.impactSent = true
+			d.emit(kinchainv1.EventKind_EVENT_KIND_IMPACT, d.impact, t)
+		}
+		d.armCheck(t)
+		if v <= math.Max(2*d.still, swing.FinishFraction*d.peak) {
+			d.ph = phSettle
+			d.settleFrom = t
+		} else if t-d.impact > MaxFollowThrough {
+			d.followTimeout(t, q)
+		}
+	case phSettle:
+		// The finish is the last sample of the fall below the finish
+		// level, at most FinishSettle after the first.
+		if v < vPrev && t-d.settleFrom <= swing.FinishSettle {
+			return
+		}
+		if !d.impactSent {
+			d.abandon(t, q)
+			return
+		}
+		fin := math.Min(tPrev, d.settleFrom+swing.FinishSettle) - d.tau
+		d.emit(kinchainv1.EventKind_EVENT_KIND_FINISH, fin, t)
+		d.complete(t, true)
+	}
+}
+
+// followTimeout ends a follow-through that found no finish.
+func (d *detector) followTimeout(t float64, q quat.Number) {
+	if d.impactSent {
+		d.complete(t, false)
+		return
+	}
+	d.abandon(t, q)
+}
+
+// begin starts a candidate at the first moving sample.
+func (d *detector) begin(t, v float64) {
+	d.ph = phBack
+	d.start, d.lastMoving = t, t
+	d.p0 = rot.Rotate(d.qStill, d.axis)
+	d.planeOK = false
+	d.phi, d.rate, d.phiMin, d.peak = 0, 0, 0, v
+	d.inRun, d.topTent = false, false
+	d.impactKnown, d.impactSent = false, false
+	d.armUpSent, d.armDown = false, false
+	d.lpR.reset()
+}
+
+// angle updates φ for pointer p.
+func (d *detector) angle(p r3.Vec) {
+	if !d.planeOK {
+		c := math.Max(-1, math.Min(1, r3.Dot(p, d.p0)))
+		ang := math.Acos(c)
+		d.phi = -ang
+		if ang >= PlaneAngle {
+			// Fix the plane through p0 and p, signed so that this first
+			// movement is negative: n = (p × p0)/|p × p0|, e2 = n × p0.
+			n := r3.Cross(p, d.p0)
+			if nn := r3.Norm(n); nn > 1e-9 {
+				n = r3.Scale(1/nn, n)
+				d.e1 = d.p0
+				d.e2 = r3.Cross(n, d.p0)
+				d.planeOK = true
+			}
+		}
+		return
+	}
+	a := math.Atan2(r3.Dot(p, d.e2), r3.Dot(p, d.e1))
+	d.phi += wrapAngle(a - wrapAngle(d.phi))
+}
+
+// backswing runs the backswing phase for the sample at t.
+func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q quat.Number) {
+	// The takeaway is where the current run of backward movement faster
+	// than the onset level began (the swing package walks back from the
+	// top to the same place).
+	back := v > d.onset && d.rate < 0
+	if back && !d.inRun {
+		d.inRun = true
+		d.runAddr = tPrev - d.tau
+		d.runTake = tPrev + (t-tPrev)*crossingAt(vPrev, v, d.onset) - d.tau
+	} else if !back {
+		d.inRun = false
+	}
+	switch {
+	case ratePrev <= 0 && d.rate > 0:
+		// A reversal from backward to forward: a tentative top.
+		d.topTent = true
+		d.topT = tPrev + (t-tPrev)*crossingAt(ratePrev, d.rate, 0) - d.tau
+		d.takeaway, d.address = d.runTake, d.runAddr
+	case d.topTent && d.rate <= 0:
+		d.topTent = false
+	}
+	if d.topTent && d.rate >= d.still && d.phi-d.phiMin >= TopConfirmAngle {
+		d.topTent = false
+		if -d.phiMin >= d.crit.amplitude {
+			d.ph = phDown
+			d.emit(kinchainv1.EventKind_EVENT_KIND_ADDRESS, d.address, t)
+			d.emit(kinchainv1.EventKind_EVENT_KIND_TAKEAWAY, d.takeaway, t)
+			d.emit(kinchainv1.EventKind_EVENT_KIND_TOP, d.topT, t)
+			d.armCheck(t)
+			return
+		}
+	}
+	switch {
+	case t-d.lastMoving > swing.MergeGap:
+		// Still for longer than the swing package merges: the movement is
+		// over without a top.
+		d.abandon(t, q)
+	case t-d.start > MaxBackswing:
+		d.abandon(t, q)
+	}
+}
+
+// quietUpdate adds speed v to the sliding quiet window.
+func (d *detector) quietUpdate(v float64) {
+	w := len(d.qwin)
+	if d.qcnt == w {
+		d.qsum -= d.qwin[d.qpos]
+	} else {
+		d.qcnt++
+	}
+	d.qwin[d.qpos] = v
+	d.qsum += v
+	d.qpos++
+	if d.qpos == w {
+		d.qpos = 0
+	}
+	if d.qcnt == w {
+		if m := d.qsum / float64(w); m < d.quiet {
+			d.quiet = m
+			d.levels()
+		}
+	}
+}
+
+// addArm records a lead-arm crossing and emits what it completes; at is
+// the arm sample's time.
+func (d *detector) addArm(c armCrossing, at float64) {
+	d.arm[d.narm%armHistory] = c
+	d.narm++
+	d.armCheck(at)
+}
+
+// armCheck emits the lead-arm events the crossings so far complete: the
+// first upward crossing between the candidate's start and its top (once
+// the top is decided), and the first downward crossing after the top and
+// not after impact.
+func (d *detector) armCheck(at float64) {
+	if d.ph < phDown || d.narm == 0 {
+		return
+	}
+	first := max(0, d.narm-armHistory)
+	if !d.armUpSent {
+		for i := first; i < d.narm; i++ {
+			c := d.arm[i%armHistory]
+			if c.up && c.t >= d.start-d.tau && c.t <= d.topT {
+				d.armUpSent = true
+				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_BACKSWING, c.t, at)
+				break
+			}
+		}
+	}
+	if !d.armDown {
+		for i := first; i < d.narm; i++ {
+			c := d.arm[i%armHistory]
+			if !c.up && c.t > d.topT && (!d.impactKnown || c.t <= d.impact) {
+				d.armDown = true
+				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_DOWNSWING, c.t, at)
+				break
+			}
+		}
+	}
+}
+
+// finishAtClose ends a swing in progress when the stream closes: one with
+// a reported impact is analysed up to the end of the stream.
+func (d *detector) finishAtClose() {
+	if (d.ph == phFollow || d.ph == phSettle) && d.impactSent {
+		d.out = append(d.out, decision{kind: decComplete, t0: d.start - PreRoll, t1: math.Inf(1),
+			impact: d.impact, at: d.tPrev})
+		d.ph = phIdle
+	}
+}

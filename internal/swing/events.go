@@ -1,0 +1,577 @@
+package swing
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+
+	"gonum.org/v1/gonum/spatial/r3"
+
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/rot"
+)
+
+// Detection thresholds. NOTES-swing.md gives the reasoning; all are our
+// choices, tuned on the synthetic model golfer and on slow practice swings
+// without a club.
+const (
+	// QuietWindow is the length of the sliding window whose lowest mean
+	// speed is a segment's quiet level (its noise floor at rest), s.
+	QuietWindow = 0.25
+	// StillFloor and StillFactor: a segment is still when its speed is at
+	// most max(StillFloor, StillFactor × quiet level), rad/s (15 °/s).
+	StillFloor  = 15 * math.Pi / 180
+	StillFactor = 3.0
+	// OnsetFloor and OnsetFactor: the first movement of the backswing is
+	// where the driver's speed rises through max(OnsetFloor,
+	// OnsetFactor × quiet level), rad/s (1 °/s).
+	OnsetFloor  = 1 * math.Pi / 180
+	OnsetFactor = 1.5
+	// MergeGap: movement separated by less than this much stillness, s,
+	// belongs to one episode (a pause at the top is shorter).
+	MergeGap = 0.2
+	// MinEpisode is the shortest movement examined as a candidate, s.
+	MinEpisode = 0.1
+	// CandidateSpeed and CandidateFactor: a movement is a candidate only
+	// when the driver's peak speed reaches max(CandidateSpeed,
+	// CandidateFactor × still level), rad/s (100 °/s).
+	CandidateSpeed  = 100 * math.Pi / 180
+	CandidateFactor = 3.0
+	// FinishFraction: after the downswing the finish is where the driver's
+	// speed first falls to max(2 × still level, FinishFraction × its peak)
+	// and then stops falling (at most FinishSettle later, s).
+	FinishFraction = 0.10
+	FinishSettle   = 0.3
+	// AddressLookback bounds the search for the still address before the
+	// takeaway, s.
+	AddressLookback = 2.0
+	// DownswingAfterImpact is how far past impact the downswing window of
+	// the sequence reaches, s.
+	DownswingAfterImpact = 0.040
+	// ShockWindow, ShockFactor, ShockFloor: the accelerometer refines
+	// impact when, within ±ShockWindow s of the angle-based impact, the
+	// largest sample-to-sample change of the driver's specific force is at
+	// least ShockFactor × its median over the downswing and at least
+	// ShockFloor m/s²; impact is then the middle of that sample interval.
+	ShockWindow = 0.020
+	ShockFactor = 6.0
+	ShockFloor  = 50.0
+)
+
+// limits are the swing criteria of one driver segment: the backswing
+// amplitude of its pointer in its swing plane (rad) and its peak speed
+// (rad/s) that a full swing reaches.
+type limits struct {
+	amplitude, peak float64
+}
+
+// limitsFor returns the swing criteria for a driver. A half swing turns the
+// club about 90°–120° (shaft horizontal or a little past), a waggle 20°–40°;
+// a full swing turns it past vertical (180°). The limb thresholds scale down
+// with the limb's smaller share of the turn (our choices; common practice,
+// no source).
+func limitsFor(d kinchainv1.Segment) limits {
+	switch d {
+	case clubSeg:
+		return limits{rad(150), rad(700)}
+	case leadHand:
+		return limits{rad(110), rad(500)}
+	case leadFore:
+		return limits{rad(90), rad(400)}
+	default:
+		return limits{rad(75), rad(300)}
+	}
+}
+
+// event is one detected moment.
+type event struct {
+	kind kinchainv1.EventKind
+	t    float64
+}
+
+// swingResult is one accepted swing.
+type swingResult struct {
+	f                                   frame
+	addrIdx, topIdx, impactIdx, peakIdx int
+	finishIdx                           int // −1 without a finish
+	address, takeaway, top, impact      float64
+	finish                              float64
+	amplitude                           float64 // rad
+	transitions                         map[kinchainv1.Segment]float64
+	transIdx                            map[kinchainv1.Segment]int
+	events                              []event
+}
+
+// levels sets the still and onset levels of s from its quiet level: the
+// lowest mean speed over any QuietWindow of valid samples.
+func (a *analysis) levels(s *seg) {
+	w := max(3, int(math.Round(QuietWindow/a.dt)))
+	quiet := math.Inf(1)
+	var sum float64
+	cnt := 0
+	for i := 0; i < a.n; i++ {
+		if s.valid(i) {
+			sum += s.mag[i]
+			cnt++
+		}
+		if j := i - w; j >= 0 && s.valid(j) {
+			sum -= s.mag[j]
+			cnt--
+		}
+		if i >= w-1 && cnt >= w/2 {
+			quiet = math.Min(quiet, sum/float64(cnt))
+		}
+	}
+	if math.IsInf(quiet, 1) {
+		// Shorter than one window or mostly invalid: the overall mean.
+		sum, cnt = 0, 0
+		for i := 0; i < a.n; i++ {
+			if s.valid(i) {
+				sum += s.mag[i]
+				cnt++
+			}
+		}
+		quiet = 0
+		if cnt > 0 {
+			quiet = sum / float64(cnt)
+		}
+	}
+	quiet = math.Max(quiet, 0)
+	s.still = math.Max(StillFloor, StillFactor*quiet)
+	s.onset = math.Max(OnsetFloor, OnsetFactor*quiet)
+}
+
+// episodes returns the spans [lo, hi] of sample indices in which the driver
+// moves (speed above its still level), runs closer than MergeGap merged and
+// runs shorter than MinEpisode dropped.
+func (a *analysis) episodes() [][2]int {
+	d := a.driver
+	gap := int(math.Round(MergeGap / a.dt))
+	minLen := int(math.Round(MinEpisode / a.dt))
+	var runs [][2]int
+	start := -1
+	for i := 0; i <= a.n; i++ {
+		moving := i < a.n && d.valid(i) && d.mag[i] > d.still
+		switch {
+		case moving && start < 0:
+			start = i
+		case !moving && start >= 0:
+			if len(runs) > 0 && start-runs[len(runs)-1][1] <= gap {
+				runs[len(runs)-1][1] = i - 1
+			} else {
+				runs = append(runs, [2]int{start, i - 1})
+			}
+			start = -1
+		}
+	}
+	out := runs[:0]
+	for _, r := range runs {
+		if r[1]-r[0]+1 >= minLen {
+			out = append(out, r)
+		}
+	}
+	return out
+}
+
+// maxDepth bounds the recursion over the parts of an episode before and
+// after a swing.
+const maxDepth = 8
+
+// episode examines the driver's movement in [lo, hi]: it finds the fastest
+// moment, and when a backswing precedes it, the swing around it; the parts
+// before its address and after its finish are examined in turn.
+func (a *analysis) episode(lo, hi, depth int) {
+	d := a.driver
+	if depth > maxDepth || hi-lo+1 < int(math.Round(MinEpisode/a.dt)) {
+		return
+	}
+	pk := -1
+	for i := lo; i <= hi; i++ {
+		if d.valid(i) && (pk < 0 || d.mag[i] > d.mag[pk]) {
+			pk = i
+		}
+	}
+	if pk < 0 || d.mag[pk] < math.Max(CandidateSpeed, CandidateFactor*d.still) {
+		return
+	}
+	// A swing attempt turns one way, then faster the other way: look for
+	// motion against the sense of the fastest moment before it (no frame
+	// needed). A one-way movement (returning from the finish, picking up
+	// the club) is not a candidate.
+	npk := unit(d.ks.Omega[pk])
+	back := false
+	for i := lo; i < pk; i++ {
+		if d.valid(i) && r3.Dot(d.ks.Omega[i], npk) <= -d.still {
+			back = true
+			break
+		}
+	}
+	if !back {
+		return
+	}
+	// Pass 1: a provisional address just before the movement.
+	from := max(0, lo-int(math.Round(0.3/a.dt)))
+	sw, why := a.detect(from, hi, pk)
+	if sw == nil {
+		a.reject(d.ks.Segment, a.time(pk), why)
+		return
+	}
+	// Pass 2: the frame and plane at the address found.
+	sw2, why := a.detect(sw.addrIdx, hi, pk)
+	end := hi
+	if sw2 != nil {
+		sw = sw2
+		if sw.finishIdx >= 0 {
+			end = sw.finishIdx
+		}
+		if why == "" {
+			a.complete(sw)
+			a.swings = append(a.swings, sw)
+		}
+	}
+	if why != "" {
+		t := a.time(pk)
+		if sw2 != nil {
+			t = sw2.top
+		}
+		a.reject(d.ks.Segment, t, why)
+	}
+	a.episode(lo, sw.addrIdx-1, depth+1)
+	a.episode(end+1, hi, depth+1)
+}
+
+// reject records a SWING_REJECTED warning.
+func (a *analysis) reject(s kinchainv1.Segment, t float64, why string) {
+	a.warnings = append(a.warnings, &kinchainv1.Warning{
+		Code:    kinchainv1.WarningCode_WARNING_CODE_SWING_REJECTED,
+		Segment: s,
+		TimeS:   &t,
+		Message: fmt.Sprintf("movement at %.3f s not analysed as a swing: %s", t, why),
+	})
+}
+
+// driverSeries returns, for the driver over [from, hi] in frame f with its
+// plane at from, the in-plane angle φ (unwrapped, φ(from) = 0) and its rate
+// dφ/dt, indexed from from.
+func (a *analysis) driverSeries(f *frame, from, hi int) (phi, rate []float64, ok bool) {
+	d := a.driver
+	ax := pointerAxis(d.id)
+	p0 := rot.Rotate(f.orientation(d.ks.Q[from]), ax)
+	pl, ok := planeFor(d.id, p0)
+	if !ok {
+		return nil, nil, false
+	}
+	phi = make([]float64, hi-from+1)
+	rate = make([]float64, hi-from+1)
+	prev := 0.0
+	for i := from; i <= hi; i++ {
+		q := f.orientation(d.ks.Q[i])
+		p := rot.Rotate(q, ax)
+		ang := pl.angle(p)
+		if i > from {
+			ang = prev + wrapPi(ang-wrapPi(prev))
+		}
+		phi[i-from] = ang
+		prev = ang
+		rate[i-from] = pl.rate(p, f.omega(d.ks.Omega[i]))
+	}
+	return phi, rate, true
+}
+
+// detect finds the driver's events of the swing whose fastest moment is pk,
+// with the frame and plane taken at sample from. It returns the swing (nil
+// when not even the takeaway was found) and, when the swing fails a
+// criterion, the reasons.
+func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
+	d := a.driver
+	f := a.frameAt(from)
+	phi, rate, ok := a.driverSeries(&f, from, hi)
+	if !ok {
+		return nil, fmt.Sprintf("the %s points straight up or down at address", segName(d.id))
+	}
+	r := func(i int) float64 { return rate[i-from] }
+	ph := func(i int) float64 { return phi[i-from] }
+	if r(pk) <= 0 {
+		return nil, fmt.Sprintf("its fastest movement (%.0f °/s at %.3f s) turns the %s away from the target; is the handedness right?",
+			deg(d.mag[pk]), a.time(pk), segName(d.id))
+	}
+	// Top: the last sign change of the rate from backward to forward
+	// before the fastest moment.
+	j := -1
+	for i := pk - 1; i >= from; i-- {
+		if d.valid(i) && d.valid(i+1) && r(i) <= 0 && r(i+1) > 0 {
+			j = i
+			break
+		}
+	}
+	if j < 0 {
+		return nil, fmt.Sprintf("no reversal from backswing to downswing before %.3f s", a.time(pk))
+	}
+	top := a.time(j) + a.dt*crossing(r(j), r(j+1), 0)
+	// Takeaway: back from the top through the backswing to where the
+	// driver's speed falls to its onset level (or it stops moving back).
+	i1 := -1
+	for i := j; i >= from; i-- {
+		if d.valid(i) && r(i) <= -d.still {
+			i1 = i
+			break
+		}
+	}
+	if i1 < 0 {
+		return nil, fmt.Sprintf("no backswing before the top at %.3f s", top)
+	}
+	i := i1
+	for i > from && d.valid(i-1) && d.mag[i] > d.onset && r(i) < 0 {
+		i--
+	}
+	take := a.time(i)
+	if i+1 <= hi {
+		take += a.dt * crossing(d.mag[i], d.mag[i+1], d.onset)
+	}
+	// Address: the last moment at or before the takeaway when every
+	// present segment is still.
+	ad := i
+	limit := max(from, i-int(math.Round(AddressLookback/a.dt)))
+	for ad > limit && !a.allStill(ad) {
+		ad--
+	}
+	if !a.allStill(ad) {
+		ad = i
+	}
+	sw := &swingResult{f: f, addrIdx: ad, topIdx: j, peakIdx: pk, finishIdx: -1,
+		address: a.time(ad), takeaway: take, top: top,
+		transitions: map[kinchainv1.Segment]float64{}, transIdx: map[kinchainv1.Segment]int{}}
+	sw.amplitude = -(ph(j) + (ph(j+1)-ph(j))*crossing(r(j), r(j+1), 0))
+
+	var why []string
+	if sw.amplitude < a.limits.amplitude {
+		why = append(why, fmt.Sprintf("backswing of the %s %.0f° in its swing plane, below %.0f° (half swing or waggle)",
+			segName(d.id), deg(sw.amplitude), deg(a.limits.amplitude)))
+	}
+	if d.mag[pk] < a.limits.peak {
+		why = append(why, fmt.Sprintf("peak speed of the %s %.0f °/s, below %.0f °/s",
+			segName(d.id), deg(d.mag[pk]), deg(a.limits.peak)))
+	}
+	// Impact: the driver's angle returns to its address value.
+	m := -1
+	for i := j + 1; i <= hi; i++ {
+		if d.valid(i-1) && d.valid(i) && ph(i-1) < 0 && ph(i) >= 0 {
+			m = i
+			break
+		}
+	}
+	if m < 0 {
+		why = append(why, fmt.Sprintf("the %s did not return to its address angle after the top at %.3f s", segName(d.id), top))
+	} else {
+		sw.impactIdx = m - 1
+		sw.impact = a.time(m-1) + a.dt*crossing(ph(m-1), ph(m), 0)
+		a.refineImpact(sw)
+	}
+	sw.finishIdx = a.finishAfter(pk, max(pk, sw.impactIdx), hi)
+	if sw.finishIdx >= 0 {
+		sw.finish = a.time(sw.finishIdx)
+	}
+	return sw, strings.Join(why, "; ")
+}
+
+// crossing returns the fraction u in [0, 1] at which the line from y0 to y1
+// passes level: linear interpolation of a sampled crossing.
+func crossing(y0, y1, level float64) float64 {
+	if y1 == y0 {
+		return 0
+	}
+	return math.Max(0, math.Min(1, (level-y0)/(y1-y0)))
+}
+
+// allStill reports whether every present segment is still (or invalid) at
+// sample i.
+func (a *analysis) allStill(i int) bool {
+	for _, s := range a.segs {
+		if s.valid(i) && s.mag[i] > s.still {
+			return false
+		}
+	}
+	return true
+}
+
+// finishAfter returns the finish sample at or after from: the first valid
+// sample where the driver's speed falls to max(2 × still level,
+// FinishFraction × its speed at pk), moved on while the speed keeps falling
+// (at most FinishSettle); −1 when the speed does not fall that far within
+// MergeGap after hi.
+func (a *analysis) finishAfter(pk, from, hi int) int {
+	d := a.driver
+	level := math.Max(2*d.still, FinishFraction*d.mag[pk])
+	limit := min(a.n-1, hi+int(math.Round(MergeGap/a.dt)))
+	settle := int(math.Round(FinishSettle / a.dt))
+	for i := from; i <= limit; i++ {
+		if !d.valid(i) || d.mag[i] > level {
+			continue
+		}
+		j := i
+		for j+1 < a.n && j-i < settle && d.valid(j+1) && d.mag[j+1] < d.mag[j] {
+			j++
+		}
+		return j
+	}
+	return -1
+}
+
+// refineImpact moves impact to the ball strike when the club (else the
+// driver) carries accelerometer readings with a shock near the angle-based
+// impact: the sample interval, within ±ShockWindow, of the largest change of
+// the specific force, when that change is at least ShockFactor × the median
+// change over the downswing and at least ShockFloor m/s².
+func (a *analysis) refineImpact(sw *swingResult) {
+	s := a.bySeg[clubSeg]
+	if s == nil || len(s.ks.Accel) != a.n {
+		s = a.driver
+	}
+	acc := s.ks.Accel
+	if len(acc) != a.n {
+		return
+	}
+	w := max(1, int(math.Round(ShockWindow/a.dt)))
+	c := sw.impactIdx
+	change := func(i int) float64 {
+		if i < 1 || i >= a.n || !s.valid(i) || !s.valid(i-1) {
+			return math.NaN()
+		}
+		return r3.Norm(r3.Sub(acc[i], acc[i-1]))
+	}
+	var base []float64
+	for i := sw.topIdx + 1; i < c-w; i++ {
+		if v := change(i); !math.IsNaN(v) {
+			base = append(base, v)
+		}
+	}
+	if len(base) < 5 {
+		return
+	}
+	med := median(base)
+	best, bi := -1.0, -1
+	for i := c - w; i <= c+w+1; i++ {
+		if v := change(i); v > best {
+			best, bi = v, i
+		}
+	}
+	if bi < 1 || best < math.Max(ShockFactor*med, ShockFloor) {
+		return
+	}
+	sw.impactIdx = bi - 1
+	sw.impact = (a.time(bi-1) + a.time(bi)) / 2
+}
+
+// median returns the median of v (reordering v).
+func median(v []float64) float64 {
+	sort.Float64s(v)
+	n := len(v)
+	if n%2 == 1 {
+		return v[n/2]
+	}
+	return (v[n/2-1] + v[n/2]) / 2
+}
+
+// complete finds the transitions and lead-arm events of an accepted swing
+// and lists its events in time order.
+func (a *analysis) complete(sw *swingResult) {
+	f := &sw.f
+	winEnd := min(a.n-1, sw.impactIdx+1+int(math.Round(DownswingAfterImpact/a.dt)))
+	for _, s := range a.segs {
+		if s == a.driver {
+			sw.transitions[s.id] = sw.top
+			sw.transIdx[s.id] = sw.topIdx
+			continue
+		}
+		if t, j, ok := a.transition(s, f, sw.addrIdx, sw.topIdx, winEnd); ok {
+			sw.transitions[s.id] = t
+			sw.transIdx[s.id] = j
+		}
+	}
+	sw.events = []event{
+		{kinchainv1.EventKind_EVENT_KIND_ADDRESS, sw.address},
+		{kinchainv1.EventKind_EVENT_KIND_TAKEAWAY, sw.takeaway},
+		{kinchainv1.EventKind_EVENT_KIND_TOP, sw.top},
+		{kinchainv1.EventKind_EVENT_KIND_IMPACT, sw.impact},
+	}
+	if sw.finishIdx >= 0 {
+		sw.events = append(sw.events, event{kinchainv1.EventKind_EVENT_KIND_FINISH, sw.finish})
+	}
+	if arm := a.bySeg[leadArm]; arm != nil {
+		armTop := sw.topIdx
+		if j, ok := sw.transIdx[leadArm]; ok {
+			armTop = j
+		}
+		// The lead upper arm's long axis is horizontal: the vertical
+		// component of its distal direction −z changes sign (the vertical
+		// is the same in the world and the target-line frame).
+		pz := func(i int) float64 { return rot.Rotate(arm.ks.Q[i], r3.Vec{Z: -1}).Z }
+		ok := func(i int) bool { return arm.valid(i) && arm.valid(i+1) }
+		for i := sw.addrIdx; i < armTop; i++ {
+			if ok(i) && pz(i) < 0 && pz(i+1) >= 0 {
+				sw.events = append(sw.events, event{kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_BACKSWING,
+					a.time(i) + a.dt*crossing(pz(i), pz(i+1), 0)})
+				break
+			}
+		}
+		for i := sw.impactIdx; i >= armTop; i-- {
+			if ok(i) && pz(i) >= 0 && pz(i+1) < 0 {
+				sw.events = append(sw.events, event{kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_DOWNSWING,
+					a.time(i) + a.dt*crossing(pz(i), pz(i+1), 0)})
+				break
+			}
+		}
+	}
+	sort.SliceStable(sw.events, func(i, j int) bool { return sw.events[i].t < sw.events[j].t })
+}
+
+// transition returns segment s's own reversal: the last sign change from
+// backward to forward of the rate of its pointer's angle in its swing plane
+// (see planeFor), before its fastest moment in [top, end]. The reversal
+// counts only when the segment moved backward before it and forward after
+// it faster than its still level.
+func (a *analysis) transition(s *seg, f *frame, addr, top, end int) (t float64, j int, ok bool) {
+	ax := pointerAxis(s.id)
+	pl, ok := planeFor(s.id, rot.Rotate(f.orientation(s.ks.Q[addr]), ax))
+	if !ok {
+		return 0, 0, false
+	}
+	pk := -1
+	for i := top; i <= end; i++ {
+		if s.valid(i) && (pk < 0 || s.mag[i] > s.mag[pk]) {
+			pk = i
+		}
+	}
+	if pk <= addr {
+		return 0, 0, false
+	}
+	rate := make([]float64, pk-addr+1)
+	for i := addr; i <= pk; i++ {
+		rate[i-addr] = pl.rate(rot.Rotate(f.orientation(s.ks.Q[i]), ax), f.omega(s.ks.Omega[i]))
+	}
+	r := func(i int) float64 { return rate[i-addr] }
+	for j = pk - 1; j >= addr; j-- {
+		if !(s.valid(j) && s.valid(j+1) && r(j) <= 0 && r(j+1) > 0) {
+			continue
+		}
+		back, fwd := false, false
+		for i := addr; i <= j; i++ {
+			if s.valid(i) && r(i) <= -s.still {
+				back = true
+				break
+			}
+		}
+		for i := j + 1; i <= pk; i++ {
+			if s.valid(i) && r(i) >= s.still {
+				fwd = true
+				break
+			}
+		}
+		if !back || !fwd {
+			return 0, 0, false
+		}
+		return a.time(j) + a.dt*crossing(r(j), r(j+1), 0), j, true
+	}
+	return 0, 0, false
+}

@@ -1,0 +1,2 @@
+// Package synth is the synthetic model golfer (documentation in progress).
+package synth
