@@ -3,10 +3,12 @@ package cli
 import (
 	"context"
 	"flag"
+	"fmt"
 	"io"
 
 	"google.golang.org/protobuf/encoding/protojson"
 
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/encode"
 	"github.com/kinchain/kinchain/internal/engine"
 )
@@ -36,16 +38,16 @@ func RunAnalyze(ctx context.Context, args []string, stdin io.Reader, stdout, std
 		return err
 	}
 	eng := engine.New(engine.Config{})
-	c, err := af.readCapture(pos, stdin, eng.Limits())
+	pc, loc, name, err := af.decodeCapture(pos, stdin, eng.Limits())
 	if err != nil {
 		return err
 	}
-	resp, err := eng.AnalyzeValidated(ctx, c, opts)
+	resp, err := eng.AnalyzeDecoded(ctx, &kinchainv1.AnalyzeCaptureRequest{Capture: pc, Options: opts}, loc)
 	if err != nil {
-		return err
+		return fmt.Errorf("%s: %w", name, err)
 	}
 	if *format == "json" {
-		b, err := protojson.MarshalOptions{Multiline: true, Indent: "  "}.Marshal(resp)
+		b, err := protojson.MarshalOptions{Multiline: true, Indent: "  ", UseProtoNames: true}.Marshal(resp)
 		if err != nil {
 			return err
 		}

@@ -48,6 +48,12 @@ func Main(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 		err = RunAnalyze(ctx, rest, stdin, stdout, stderr)
 	case "synth":
 		err = RunSynth(ctx, rest, stdout, stderr)
+	case "fuse":
+		err = RunFuse(ctx, rest, stdin, stdout, stderr)
+	case "plot":
+		err = RunPlot(ctx, rest, stdin, stdout, stderr)
+	case "serve":
+		err = RunServe(ctx, rest, stdout, stderr)
 	case "version":
 		err = RunVersion(rest, stdout)
 	case "help", "-h", "--help":

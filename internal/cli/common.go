@@ -124,27 +124,40 @@ func demoCapture() (*kinchainv1.Capture, error) {
 }
 
 // readCapture loads the capture named by the positional arguments ("-" for
-// stdin) or the demo, decodes and validates it.
+// stdin) or the demo, decodes and validates it; errors are prefixed with the
+// file name.
 func (f *analysisFlags) readCapture(pos []string, stdin io.Reader, lim validate.Limits) (*capture.Capture, error) {
-	var (
-		pc  *kinchainv1.Capture
-		loc validate.Locator
-		err error
-	)
+	pc, loc, name, err := f.decodeCapture(pos, stdin, lim)
+	if err != nil {
+		return nil, err
+	}
+	c, err := validate.Capture(pc, lim, loc)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	return c, nil
+}
+
+// decodeCapture loads and decodes the capture named by the positional
+// arguments ("-" for stdin) or the demo, and returns it with its line
+// locator (CSV) and a name for messages.
+func (f *analysisFlags) decodeCapture(pos []string, stdin io.Reader, lim validate.Limits) (*kinchainv1.Capture, validate.Locator, string, error) {
 	switch {
 	case f.demo && len(pos) > 0:
-		return nil, usagef("give either --demo or a capture file, not both")
+		return nil, nil, "", usagef("give either --demo or a capture file, not both")
 	case f.demo:
-		if pc, err = demoCapture(); err != nil {
-			return nil, err
-		}
+		pc, err := demoCapture()
+		return pc, nil, "demo", err
 	case len(pos) == 0:
-		return nil, usagef("no capture given: name a file (or - for standard input), or use --demo")
+		return nil, nil, "", usagef("no capture given: name a file (or - for standard input), or use --demo")
 	case len(pos) > 1:
-		return nil, usagef("one capture file at a time (got %d)", len(pos))
+		return nil, nil, "", usagef("one capture file at a time (got %d)", len(pos))
 	default:
 		name := pos[0]
-		var data []byte
+		var (
+			data []byte
+			err  error
+		)
 		if name == "-" {
 			data, err = io.ReadAll(io.LimitReader(stdin, maxBytes(lim)+1))
 			name = "stdin"
@@ -152,21 +165,17 @@ func (f *analysisFlags) readCapture(pos []string, stdin io.Reader, lim validate.
 			data, err = os.ReadFile(name)
 		}
 		if err != nil {
-			return nil, err
+			return nil, nil, "", err
 		}
 		if int64(len(data)) > maxBytes(lim) {
-			return nil, fmt.Errorf("%s: larger than the %d-byte limit", name, maxBytes(lim))
+			return nil, nil, "", fmt.Errorf("%s: larger than the %d-byte limit", name, maxBytes(lim))
 		}
-		pc, loc, err = decode.File(filepath.Base(name), data, lim)
+		pc, loc, err := decode.File(filepath.Base(name), data, lim)
 		if err != nil {
-			return nil, fmt.Errorf("%s: %w", name, err)
+			return nil, nil, "", fmt.Errorf("%s: %w", name, err)
 		}
+		return pc, loc, name, nil
 	}
-	c, err := validate.Capture(pc, lim, loc)
-	if err != nil {
-		return nil, err
-	}
-	return c, nil
 }
 
 func maxBytes(lim validate.Limits) int64 {

@@ -32,7 +32,8 @@ CSV columns: time_s (s), gx gy gz (rad/s), ax ay az (m/s²), optional
 mx my mz (any unit), optional segment. Without a segment column the file is
 one track: name it with --segment NAME or a '# segment: NAME' line. Without
 a time_s column give --rate HZ: sample k of each segment is then at k/HZ s.
-Tracks with quaternions only are copied unchanged.
+Tracks with quaternions only are copied unchanged; tracks with both are
+fused from their raw columns.
 
 Frames: quaternions rotate sensor → world, world z up. With a magnetometer
 world x is magnetic east and y magnetic north; with --no-mag (or without

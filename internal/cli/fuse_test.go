@@ -38,10 +38,10 @@ func fuseTruth(t float64) (q quat.Number, bodyRate r3.Vec) {
 // mid-latitude field; from memory).
 var fuseField = r3.Vec{Y: 20, Z: -44}
 
-// rawCSV writes n samples at rate Hz of fuseTruth as raw columns. cols
+// fuseRawCSV writes n samples at rate Hz of fuseTruth as raw columns. cols
 // chooses the layout: "time" adds time_s, "seg" a segment column with the
 // given name, "mag" the magnetometer.
-func rawCSV(n int, rate float64, seg string, withTime, withMag bool, meta string) string {
+func fuseRawCSV(n int, rate float64, seg string, withTime, withMag bool, meta string) string {
 	var b strings.Builder
 	b.WriteString(meta)
 	var hdr []string
@@ -81,9 +81,9 @@ func rawCSV(n int, rate float64, seg string, withTime, withMag bool, meta string
 	return b.String()
 }
 
-// readBack decodes and validates fuse's output the way analyze reads a
+// fuseReadBack decodes and validates fuse's output the way analyze reads a
 // capture (decode.CSV, validate.Capture).
-func readBack(t *testing.T, out string) (*kinchainv1.Capture, *capture.Capture) {
+func fuseReadBack(t *testing.T, out string) (*kinchainv1.Capture, *capture.Capture) {
 	t.Helper()
 	pc, loc, err := decode.CSV(strings.NewReader(out), validate.Limits{})
 	if err != nil {
@@ -96,7 +96,7 @@ func readBack(t *testing.T, out string) (*kinchainv1.Capture, *capture.Capture) 
 	return pc, c
 }
 
-func runFuse(args []string, stdin string) (string, string, error) {
+func fuseRun(args []string, stdin string) (string, string, error) {
 	var out, errb bytes.Buffer
 	err := RunFuse(context.Background(), args, strings.NewReader(stdin), &out, &errb)
 	return out.String(), errb.String(), err
@@ -107,15 +107,15 @@ func runFuse(args []string, stdin string) (string, string, error) {
 // magnetic north (VQF's frame). Bound: 1° after the first second (the
 // fusion package's synthetic tests bound the filter itself more tightly).
 func TestFuseRoundTrip(t *testing.T) {
-	in := rawCSV(1000, 100, "", true, true, "# segment: lead_hand\n# handedness: left\n# club: 7-iron\n# venue: range 3\n")
-	out, stderr, err := runFuse([]string{"-"}, in)
+	in := fuseRawCSV(1000, 100, "", true, true, "# segment: lead_hand\n# handedness: left\n# club: 7-iron\n# venue: range 3\n")
+	out, stderr, err := fuseRun([]string{"-"}, in)
 	if err != nil {
 		t.Fatalf("fuse: %v (stderr %q)", err, stderr)
 	}
 	if !strings.Contains(out, "time_s,segment,qw,qx,qy,qz\n") {
 		t.Fatalf("header missing:\n%.300s", out)
 	}
-	pc, c := readBack(t, out)
+	pc, c := fuseReadBack(t, out)
 	if pc.GetHandedness() != kinchainv1.Handedness_HANDEDNESS_LEFT || pc.GetClub() != "7-iron" || pc.GetMetadata()["venue"] != "range 3" {
 		t.Errorf("metadata not carried: %v %q %v", pc.GetHandedness(), pc.GetClub(), pc.GetMetadata())
 	}
@@ -146,12 +146,12 @@ func TestFuseRoundTrip(t *testing.T) {
 // track of a file without a segment column; --no-mag fuses 6D (inclination
 // still right, heading free).
 func TestFuseRateSegmentNoMag(t *testing.T) {
-	in := rawCSV(500, 200, "", false, true, "")
-	out, stderr, err := runFuse([]string{"--rate", "200", "--segment", "club", "--no-mag", "-"}, in)
+	in := fuseRawCSV(500, 200, "", false, true, "")
+	out, stderr, err := fuseRun([]string{"--rate", "200", "--segment", "club", "--no-mag", "-"}, in)
 	if err != nil {
 		t.Fatalf("fuse: %v (%s)", err, stderr)
 	}
-	pc, c := readBack(t, out)
+	pc, c := fuseReadBack(t, out)
 	tr := c.Tracks[0]
 	if tr.Segment != kinchainv1.Segment_SEGMENT_CLUB || len(tr.Time) != 500 {
 		t.Fatalf("track %v with %d samples", tr.Segment, len(tr.Time))
@@ -174,8 +174,8 @@ func TestFuseRateSegmentNoMag(t *testing.T) {
 // A file with a segment column may hold several tracks, with or without
 // magnetometer, and tracks with quaternions only are copied.
 func TestFuseSeveralTracks(t *testing.T) {
-	a := rawCSV(300, 100, "pelvis", true, false, "")
-	b := rawCSV(300, 100, "thorax", true, false, "")
+	a := fuseRawCSV(300, 100, "pelvis", true, false, "")
+	b := fuseRawCSV(300, 100, "thorax", true, false, "")
 	// Interleave the rows of the two tracks under one header.
 	al := strings.Split(strings.TrimSpace(a), "\n")
 	bl := strings.Split(strings.TrimSpace(b), "\n")
@@ -184,11 +184,11 @@ func TestFuseSeveralTracks(t *testing.T) {
 	for i := 1; i < len(al); i++ {
 		in.WriteString(al[i] + "\n" + bl[i] + "\n")
 	}
-	out, stderr, err := runFuse([]string{"-"}, in.String())
+	out, stderr, err := fuseRun([]string{"-"}, in.String())
 	if err != nil {
 		t.Fatalf("fuse: %v (%s)", err, stderr)
 	}
-	_, c := readBack(t, out)
+	_, c := fuseReadBack(t, out)
 	if len(c.Tracks) != 2 || c.Tracks[0].Segment != kinchainv1.Segment_SEGMENT_PELVIS || c.Tracks[1].Segment != kinchainv1.Segment_SEGMENT_THORAX {
 		t.Fatalf("tracks %v", c.Tracks)
 	}
@@ -197,14 +197,14 @@ func TestFuseSeveralTracks(t *testing.T) {
 	for i := 0; i < 50; i++ {
 		q += fmt.Sprintf("%g,0.5,0.5,0.5,0.5\n", float64(i)/50)
 	}
-	out, stderr, err = runFuse([]string{"-"}, q)
+	out, stderr, err = fuseRun([]string{"-"}, q)
 	if err != nil {
 		t.Fatalf("fuse: %v", err)
 	}
 	if !strings.Contains(stderr, "head: no gyroscope and accelerometer columns") {
 		t.Errorf("no note about the copied track: %q", stderr)
 	}
-	_, c = readBack(t, out)
+	_, c = fuseReadBack(t, out)
 	if got := c.Tracks[0].Q[10]; got != (quat.Number{Real: 0.5, Imag: 0.5, Jmag: 0.5, Kmag: 0.5}) {
 		t.Errorf("copied quaternion changed: %v", got)
 	}
@@ -212,7 +212,7 @@ func TestFuseSeveralTracks(t *testing.T) {
 
 // Clipped readings are reported on stderr as warnings.
 func TestFuseReportsSaturation(t *testing.T) {
-	in := rawCSV(400, 100, "", true, false, "# segment: club\n")
+	in := fuseRawCSV(400, 100, "", true, false, "# segment: club\n")
 	lines := strings.Split(in, "\n")
 	// Rows 300–305 (lines 302–307): gz flat at 2000 °/s.
 	for i := 302; i < 308; i++ {
@@ -220,7 +220,7 @@ func TestFuseReportsSaturation(t *testing.T) {
 		f[3] = fmt.Sprint(2000 * math.Pi / 180)
 		lines[i] = strings.Join(f, ",")
 	}
-	_, stderr, err := runFuse([]string{"-"}, strings.Join(lines, "\n"))
+	_, stderr, err := fuseRun([]string{"-"}, strings.Join(lines, "\n"))
 	if err != nil {
 		t.Fatalf("fuse: %v", err)
 	}
@@ -229,8 +229,8 @@ func TestFuseReportsSaturation(t *testing.T) {
 	}
 	// A wider configured range and plateau threshold: only the flat top is
 	// left, and it is 2000/4000 = 50 % ≥ 25 % of the range: still found.
-	_, stderr, err = runFuse([]string{"--gyro-range-dps", "4000", "-"}, strings.Join(lines, "\n"))
-	if err != nil || !strings.Contains(stderr, "flat at its extreme") || strings.Contains(stderr, "at the configured range") {
+	_, stderr, err = fuseRun([]string{"--gyro-range-dps", "4000", "-"}, strings.Join(lines, "\n"))
+	if err != nil || !strings.Contains(stderr, "flat at its extreme") || strings.Contains(stderr, "configured range") {
 		t.Fatalf("plateau with a wide range: %v %q", err, stderr)
 	}
 }
@@ -238,22 +238,22 @@ func TestFuseReportsSaturation(t *testing.T) {
 // Files on disk work like standard input.
 func TestFuseFile(t *testing.T) {
 	p := filepath.Join(t.TempDir(), "raw.csv")
-	if err := os.WriteFile(p, []byte(rawCSV(100, 100, "", true, true, "# segment: head\n")), 0o600); err != nil {
+	if err := os.WriteFile(p, []byte(fuseRawCSV(100, 100, "", true, true, "# segment: head\n")), 0o600); err != nil {
 		t.Fatal(err)
 	}
-	out, _, err := runFuse([]string{p}, "")
+	out, _, err := fuseRun([]string{p}, "")
 	if err != nil {
 		t.Fatal(err)
 	}
-	readBack(t, out)
+	fuseReadBack(t, out)
 }
 
 // Bad input and flags give clear errors; usage mistakes are usage errors.
 func TestFuseErrors(t *testing.T) {
-	withTime := rawCSV(100, 100, "", true, false, "")
-	noTime := rawCSV(100, 100, "", false, false, "")
-	named := rawCSV(100, 100, "", true, false, "# segment: head\n")
-	segCol := rawCSV(100, 100, "head", true, false, "")
+	withTime := fuseRawCSV(100, 100, "", true, false, "")
+	noTime := fuseRawCSV(100, 100, "", false, false, "")
+	named := fuseRawCSV(100, 100, "", true, false, "# segment: head\n")
+	segCol := fuseRawCSV(100, 100, "head", true, false, "")
 	cases := []struct {
 		name  string
 		args  []string
@@ -277,7 +277,7 @@ func TestFuseErrors(t *testing.T) {
 		{"flag on JSON", []string{"--rate", "100", "-"}, `{"tracks": []}`, "CSV input only", true},
 	}
 	for _, c := range cases {
-		_, _, err := runFuse(c.args, c.in)
+		_, _, err := fuseRun(c.args, c.in)
 		if err == nil {
 			t.Errorf("%s: no error", c.name)
 			continue
@@ -293,7 +293,7 @@ func TestFuseErrors(t *testing.T) {
 
 // Help prints the usage and succeeds the way the dispatcher expects.
 func TestFuseHelp(t *testing.T) {
-	_, stderr, err := runFuse([]string{"-h"}, "")
+	_, stderr, err := fuseRun([]string{"-h"}, "")
 	if err == nil || !strings.Contains(stderr, "Usage: kinchain fuse") || !strings.Contains(stderr, "--no-mag") {
 		t.Fatalf("help: %v %q", err, stderr)
 	}

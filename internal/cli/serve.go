@@ -16,8 +16,10 @@ import (
 
 	"github.com/prometheus/client_golang/prometheus"
 
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/engine"
 	"github.com/kinchain/kinchain/internal/server"
+	"github.com/kinchain/kinchain/internal/stream"
 	"github.com/kinchain/kinchain/internal/version"
 )
 
@@ -135,7 +137,14 @@ func runServe(ctx context.Context, args []string, lookupEnv func(string) (string
 	}()
 
 	eng := engine.New(engine.Config{})
-	srv, err := server.New(f.cfg, eng, nil, prometheus.NewRegistry(), log)
+	streams := func(h *kinchainv1.StreamHeader) (server.StreamSession, error) {
+		s, err := stream.NewSession(h, stream.Limits{})
+		if err != nil {
+			return nil, err // never a typed nil in the interface
+		}
+		return s, nil
+	}
+	srv, err := server.New(f.cfg, eng, streams, prometheus.NewRegistry(), log)
 	if err != nil {
 		return err
 	}

@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strconv"
+	"strings"
 
 	"gonum.org/v1/gonum/num/quat"
 	"gonum.org/v1/gonum/spatial/r3"
@@ -127,7 +129,6 @@ func Run(c *capture.Capture, opt Options) (*Result, error) {
 		return nil, err
 	}
 
-	qbuf := make([]quat.Number, nmax)
 	for i := range c.Tracks {
 		t := &c.Tracks[i]
 		tm := &timings[i]
@@ -136,10 +137,8 @@ func Run(c *capture.Capture, opt Options) (*Result, error) {
 		seg.SourceRate = 1 / tm.median
 		seg.Mounting = mount[i].m
 		seg.Calibrated = mount[i].calibrated
-		q := qbuf[:t.Len()]
-		copy(q, t.Q)
-		flips := Continuity(q)
-		resample(g, t, q, tm.bound, seg)
+		flips := continuityFlips(t.Q)
+		resample(g, t, tm.bound, seg)
 		sat := saturation(t)
 		seg.Quality = quality(t, tm, flips, sat)
 		r.Warnings = append(r.Warnings, trackWarnings(t, tm, sat, g)...)
@@ -161,7 +160,7 @@ func checkOptions(opt Options) error {
 // guarantees it, but Run must not misbehave on a capture built otherwise.
 func checkTrack(c *capture.Capture, i int) error {
 	t := &c.Tracks[i]
-	f := fmt.Sprintf("tracks[%d]", i)
+	f := "tracks[" + strconv.Itoa(i) + "]"
 	if t.Segment == kinchainv1.Segment_SEGMENT_UNSPECIFIED || kinchainv1.Segment_name[int32(t.Segment)] == "" {
 		return inputErr(f+".segment", -1, "unspecified or unknown segment %d", t.Segment)
 	}
@@ -186,11 +185,15 @@ func checkTrack(c *capture.Capture, i int) error {
 	if t.Accel != nil && len(t.Accel) != n {
 		return inputErr(f+".ax", -1, "%d accelerometer samples for %d sample times", len(t.Accel), n)
 	}
-	for k, x := range t.Time {
-		if math.IsNaN(x) || math.IsInf(x, 0) {
-			return inputErr(f+".time_s", k, "not finite")
-		}
-		if k > 0 && !(x > t.Time[k-1]) {
+	if x := t.Time[0]; math.IsNaN(x) || math.IsInf(x, 0) {
+		return inputErr(f+".time_s", 0, "not finite")
+	}
+	if x := t.Time[n-1]; math.IsInf(x, 0) {
+		return inputErr(f+".time_s", n-1, "not finite")
+	}
+	for k := 1; k < n; k++ {
+		// The comparison also rejects NaN.
+		if x := t.Time[k]; !(x > t.Time[k-1]) {
 			return inputErr(f+".time_s", k, "%g s is not after the previous sample (%g s)", x, t.Time[k-1])
 		}
 	}
@@ -359,11 +362,29 @@ func trackIndex(c *capture.Capture, s kinchainv1.Segment) int {
 // taken to coincide with a sample.
 const snap = 1e-9
 
+// continuityFlips returns the number of samples Continuity would negate in
+// q, without changing q: sample i ends up negated (sᵢ = −1) exactly when
+// sᵢ₋₁·(q[i−1]·q[i]) < 0, s₀ = +1.
+func continuityFlips(q []quat.Number) int {
+	flips, neg := 0, false
+	for i := 1; i < len(q); i++ {
+		d := rot.Dot(q[i-1], q[i])
+		neg = (d < 0) != neg
+		if neg {
+			flips++
+		}
+	}
+	return flips
+}
+
 // resample fills seg.Q, seg.Valid, seg.Gyro and seg.Accel on grid g from
-// track t with continuity-fixed quaternions q, applying seg.Mounting.
-func resample(g Grid, t *capture.Track, q []quat.Number, bound float64, seg *Segment) {
+// track t, applying seg.Mounting. The track's quaternions are made
+// hemisphere-continuous on the fly, as Continuity would (t.Q is not
+// modified).
+func resample(g Grid, t *capture.Track, bound float64, seg *Segment) {
 	n := t.Len()
 	ts := t.Time
+	src := t.Q
 	m := seg.Mounting
 	mc := rot.Conj(m)
 	seg.Q = make([]quat.Number, g.N)
@@ -375,24 +396,34 @@ func resample(g Grid, t *capture.Track, q []quat.Number, bound float64, seg *Seg
 	}
 	k := 0
 	invalid := 0
+	dt := g.Dt()
+	// qa, qb: the continuity-fixed q[k], q[k+1].
+	qa, qb := src[0], src[1]
+	if rot.Dot(qa, qb) < 0 {
+		qb = rot.Neg(qb)
+	}
 	for i := 0; i < g.N; i++ {
-		tg := g.Start + float64(i)/g.Rate
+		tg := g.Start + float64(i)*dt
 		for k < n-2 && ts[k+1] <= tg {
 			k++
+			qa, qb = qb, src[k+1]
+			if rot.Dot(qa, qb) < 0 {
+				qb = rot.Neg(qb)
+			}
 		}
-		dt := ts[k+1] - ts[k]
-		u := (tg - ts[k]) / dt
+		span := ts[k+1] - ts[k]
+		u := (tg - ts[k]) / span
 		var qq quat.Number
 		switch {
 		case u <= snap:
 			u = 0
-			qq = q[k]
+			qq = qa
 		case u >= 1-snap:
 			u = 1
-			qq = q[k+1]
+			qq = qb
 		default:
-			qq = rot.SlerpPrecise(q[k], q[k+1], u)
-			if dt > bound {
+			qq = rot.SlerpPrecise(qa, qb, u)
+			if span > bound {
 				if seg.Valid == nil {
 					seg.Valid = make([]bool, g.N)
 					for j := 0; j < i; j++ {
@@ -403,7 +434,7 @@ func resample(g Grid, t *capture.Track, q []quat.Number, bound float64, seg *Seg
 			}
 		}
 		if seg.Valid != nil {
-			seg.Valid[i] = !(u > 0 && u < 1 && dt > bound)
+			seg.Valid[i] = !(u > 0 && u < 1 && span > bound)
 		}
 		qo := rot.Mul(qq, mc)
 		if i > 0 && rot.Dot(seg.Q[i-1], qo) < 0 {
@@ -567,19 +598,20 @@ func warning(code kinchainv1.WarningCode, s kinchainv1.Segment, t float64, forma
 	return w
 }
 
-// segName returns the lower-case name of a segment as the API spells it
-// without its prefix ("lead_forearm").
+// segNames holds the lower-case segment names as the API spells them
+// without their prefix ("lead_forearm"); read-only after initialisation.
+var segNames = func() map[kinchainv1.Segment]string {
+	m := make(map[kinchainv1.Segment]string, len(kinchainv1.Segment_name))
+	for v, n := range kinchainv1.Segment_name {
+		m[kinchainv1.Segment(v)] = strings.ToLower(strings.TrimPrefix(n, "SEGMENT_"))
+	}
+	return m
+}()
+
+// segName returns the lower-case name of a segment ("lead_forearm").
 func segName(s kinchainv1.Segment) string {
-	n := s.String()
-	const p = "SEGMENT_"
-	if len(n) > len(p) && n[:len(p)] == p {
-		n = n[len(p):]
+	if n, ok := segNames[s]; ok {
+		return n
 	}
-	b := []byte(n)
-	for i, c := range b {
-		if c >= 'A' && c <= 'Z' {
-			b[i] = c + 'a' - 'A'
-		}
-	}
-	return string(b)
+	return s.String()
 }

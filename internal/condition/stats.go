@@ -24,7 +24,9 @@ func median(v []float64) float64 {
 	// holding the k smallest values.
 	lo := v[0]
 	for _, x := range v[1:k] {
-		lo = math.Max(lo, x)
+		if x > lo {
+			lo = x
+		}
 	}
 	return (lo + hi) / 2
 }

@@ -132,3 +132,55 @@ func TestJSONTrackBomb(t *testing.T) {
 		t.Fatalf("got %v", err)
 	}
 }
+
+// TestJSONWalkerAgreesWithProtojson: inputs protojson accepts in unusual
+// spellings pass the walk too (the walk runs first on bodies with many
+// objects, so it must not reject what protojson reads).
+func TestJSONWalkerAgreesWithProtojson(t *testing.T) {
+	pad := strings.Repeat(`{"segment": "SEGMENT_HEAD"},`, 10) // 10 objects; 4·16+16 = 80 would be the threshold
+	in := `{"capture": {"metadata": {"a": "b"}, "handedness": null, "tracks": [` + pad + `
+	  {"segment": 5, "timeS": [0, "0.5", 1e-3, -2E2, "Infinity"], "qw": null}]},
+	 "options": {"filterOrder": "3", "cutoffHz": "12.5", "rateHz": 1e2, "includeSeries": true, "speed": 2,
+	  "neutral": {"startS": "-1", "endS": 2}}}`
+	// Push the object count over the walk threshold with extra neutral-free
+	// padding inside metadata strings (braces in strings count too).
+	in = strings.Replace(in, `"a": "b"`, `"a": "`+strings.Repeat("{", 100)+`"`, 1)
+	r, err := decode.JSONRequest([]byte(in))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.GetOptions().GetFilterOrder() != 3 || r.GetOptions().GetCutoffHz() != 12.5 || r.GetCapture().GetTracks()[10].GetTimeS()[1] != 0.5 {
+		t.Errorf("decoded %v", r)
+	}
+}
+
+func TestJSONRequestErrors(t *testing.T) {
+	cases := []struct {
+		in, field string
+		sample    int
+	}{
+		{`{"options": {"filterOrder": "three"}}`, "options.filter_order", -1},
+		{`{"options": {"filterOrder": true}}`, "options.filter_order", -1},
+		{`{"options": {"filterOrder": 3000000000}}`, "options.filter_order", -1},
+		{`{"options": {"cutoffHz": " 1"}}`, "options.cutoff_hz", -1},
+		{`{"options": {"cutoffHz": [1]}}`, "options.cutoff_hz", -1},
+		{`{"options": {"includeSeries": 1}}`, "options.include_series", -1},
+		{`{"options": {"speed": "FAST"}}`, "options.speed", -1},
+		{`{"options": {"speed": 99999999999}}`, "options.speed", -1},
+		{`{"capture": {"tracks": [{"timeS": [0, {}]}]}}`, "capture.tracks[0].time_s", 1},
+		{`{"capture": {"tracks": [{"timeS": [0, [1]]}]}}`, "capture.tracks[0].time_s", 1},
+		{`{"capture": {"tracks": [{"segment": "SEGMENT_PELVIS"}, 7]}}`, "capture.tracks[1]", -1},
+		{`{"capture": {"metadata": {"k": null}}}`, `capture.metadata["k"]`, -1},
+		{`{"capture": {"metadata": {"k": "v"`, "capture.metadata", -1},
+		{`{"capture": {"neutral": {"startS": 0`, "capture.neutral", -1},
+		{`{"capture": {"tracks": [`, "capture.tracks", -1},
+		{`{"capture": `, "capture", -1},
+	}
+	for _, tc := range cases {
+		_, err := decode.JSONRequest([]byte(tc.in))
+		var e *validate.Error
+		if !errors.As(err, &e) || e.Field != tc.field || e.Sample != tc.sample || e.Reason != validate.ReasonMalformed {
+			t.Errorf("%s: got %v, want %s[%d] malformed", tc.in, err, tc.field, tc.sample)
+		}
+	}
+}

@@ -44,14 +44,7 @@ func (e *Engine) Limits() validate.Limits { return e.lim }
 // Analyze validates and analyses a request. Bad input yields a
 // *validate.Error naming the field and sample.
 func (e *Engine) Analyze(ctx context.Context, req *kinchainv1.AnalyzeCaptureRequest) (*kinchainv1.AnalyzeCaptureResponse, error) {
-	if req.GetCapture() == nil {
-		return nil, &validate.Error{Field: "capture", Sample: -1, Reason: validate.ReasonMissingField, Detail: "required"}
-	}
-	c, err := validate.Capture(req.GetCapture(), e.lim, nil)
-	if err != nil {
-		return nil, err
-	}
-	return e.AnalyzeValidated(ctx, c, req.GetOptions())
+	return e.AnalyzeDecoded(ctx, req, nil)
 }
 
 // AnalyzeCSV decodes a capture in the CSV format from r and analyses it.
@@ -61,19 +54,31 @@ func (e *Engine) AnalyzeCSV(ctx context.Context, r io.Reader, opts *kinchainv1.A
 	if err != nil {
 		return nil, err
 	}
-	c, err := validate.Capture(pc, e.lim, loc)
+	return e.AnalyzeDecoded(ctx, &kinchainv1.AnalyzeCaptureRequest{Capture: pc, Options: opts}, loc)
+}
+
+// AnalyzeDecoded validates a decoded request and analyses it; loc, when
+// non-nil, maps samples to the lines of the file they came from so that
+// errors can name them.
+func (e *Engine) AnalyzeDecoded(ctx context.Context, req *kinchainv1.AnalyzeCaptureRequest, loc validate.Locator) (*kinchainv1.AnalyzeCaptureResponse, error) {
+	c, err := validate.Request(req, e.lim, loc)
 	if err != nil {
 		return nil, err
 	}
-	return e.AnalyzeValidated(ctx, c, opts)
+	return e.analyze(ctx, c, req.GetOptions())
 }
 
-// AnalyzeValidated analyses an already validated capture. It modifies c
-// (fusion fills in orientations of raw IMU tracks).
+// AnalyzeValidated analyses an already validated capture with options that
+// are checked here. It modifies c (fusion fills in orientations of raw IMU
+// tracks; option overrides of handedness and neutral window are applied).
 func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts *kinchainv1.AnalysisOptions) (*kinchainv1.AnalyzeCaptureResponse, error) {
-	if err := validate.Options(opts); err != nil {
+	if err := validate.OptionsWithin(opts, e.lim); err != nil {
 		return nil, err
 	}
+	return e.analyze(ctx, c, opts)
+}
+
+func (e *Engine) analyze(ctx context.Context, c *capture.Capture, opts *kinchainv1.AnalysisOptions) (*kinchainv1.AnalyzeCaptureResponse, error) {
 	if opts == nil {
 		opts = &kinchainv1.AnalysisOptions{}
 	}
@@ -99,8 +104,11 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 	}
 	warnings = append(warnings, cond.Warnings...)
 	for i := range cond.Segments {
-		if fused[cond.Segments[i].Segment] && cond.Segments[i].Quality != nil {
-			cond.Segments[i].Quality.Fused = true
+		rep, ok := fused[cond.Segments[i].Segment]
+		if q := cond.Segments[i].Quality; ok && q != nil {
+			q.Fused = true
+			q.GyroSaturationSuspected = q.GyroSaturationSuspected || rep.GyroSaturated()
+			q.AccelClippingSuspected = q.AccelClippingSuspected || rep.AccelClipped()
 		}
 	}
 	if err := ctx.Err(); err != nil {
@@ -135,7 +143,7 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 		ks := &kin.Segments[i]
 		sk := &kinchainv1.SegmentKinematics{
 			Segment:      ks.Segment,
-			SampleRateHz: ks.SourceRate,
+			SampleRateHz: tidyRate(ks.SourceRate),
 			CutoffHz:     ks.Cutoff,
 		}
 		if p, ok := kinematics.PeakSpeedIn(ks, 0, len(ks.Speed)); ok {
@@ -149,6 +157,7 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 	}
 	for i := range cond.Segments {
 		if q := cond.Segments[i].Quality; q != nil {
+			q.EffectiveRateHz = tidyRate(q.EffectiveRateHz)
 			resp.Quality.Tracks = append(resp.Quality.Tracks, q)
 		}
 	}
@@ -157,8 +166,8 @@ func (e *Engine) AnalyzeValidated(ctx context.Context, c *capture.Capture, opts 
 
 // fuse estimates orientations for tracks that carry raw IMU readings only,
 // or for every track with raw readings when the options ask for fusion.
-func fuse(c *capture.Capture, opts *kinchainv1.AnalysisOptions) (map[kinchainv1.Segment]bool, []*kinchainv1.Warning, error) {
-	done := map[kinchainv1.Segment]bool{}
+func fuse(c *capture.Capture, opts *kinchainv1.AnalysisOptions) (map[kinchainv1.Segment]fusion.Report, []*kinchainv1.Warning, error) {
+	done := map[kinchainv1.Segment]fusion.Report{}
 	var warnings []*kinchainv1.Warning
 	force := opts.GetOrientationSource() == kinchainv1.OrientationSource_ORIENTATION_SOURCE_FUSION
 	for i := range c.Tracks {
@@ -172,7 +181,7 @@ func fuse(c *capture.Capture, opts *kinchainv1.AnalysisOptions) (map[kinchainv1.
 			return nil, nil, err
 		}
 		warnings = append(warnings, rep.Warnings(t.Segment)...)
-		done[t.Segment] = true
+		done[t.Segment] = rep
 	}
 	return done, warnings, nil
 }
@@ -222,6 +231,15 @@ func handedness(h kinchainv1.Handedness) kinchainv1.Handedness {
 		return kinchainv1.Handedness_HANDEDNESS_RIGHT
 	}
 	return h
+}
+
+// tidyRate rounds a rate measured from float sample times to a whole number
+// of Hz when it is within 1 ppm of one (999.9999999999991 → 1000).
+func tidyRate(r float64) float64 {
+	if n := math.Round(r); math.Abs(r-n) <= 1e-6*r {
+		return n
+	}
+	return r
 }
 
 func deg(rad float64) float64 { return rad * 180 / math.Pi }

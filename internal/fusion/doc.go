@@ -7,7 +7,8 @@
 // rejection", Information Fusion 91 (2023) 187–204. It is implemented here in
 // pure Go from the paper's equations, written from memory of the paper and of
 // its authors' published reference implementation; every default parameter is
-// the paper's and is documented on Params. The filter is causal: Filter runs
+// the paper's (compared with that implementation's parameter documentation)
+// and is documented on Params. The filter is causal: Filter runs
 // sample by sample, so it serves live streams as well as whole captures.
 //
 // Frames: a quaternion (w, x, y, z) rotates vectors from the sensor frame
@@ -20,4 +21,8 @@
 // Track fuses one capture track and reports golf-specific findings the
 // filter cannot repair: gyroscope saturation (a club can exceed a 2000 °/s
 // gyroscope) and accelerometer clipping near impact.
+//
+// Madgwick and Mahony hold the two classic complementary filters, computed
+// step for step as the npm package ahrs 1.3.3 does, as baselines for the
+// benchmark tests.
 package fusion

@@ -159,12 +159,12 @@ func (s Saturation) message() string {
 	}
 	var why []string
 	if s.Rule&AtRange != 0 {
-		why = append(why, "at the configured range")
+		why = append(why, "at or past the configured range")
 	}
 	if s.Rule&Plateau != 0 {
 		why = append(why, "flat at its extreme")
 	}
-	return fmt.Sprintf("%s %s axis %s (peak %s) for %d samples, %.3f–%.3f s; orientation there is estimated from clipped readings",
+	return fmt.Sprintf("%s %s axis %s (peak %s) for %d samples, %.3f–%.3f s: the sensor's range was probably exceeded and the orientation there is less reliable",
 		s.Sensor, axis, strings.Join(why, " and "), peak, s.Samples(), s.StartS, s.EndS)
 }
 

@@ -13,9 +13,11 @@ import (
 const deg = math.Pi / 180
 
 // Params tunes the VQF filter. A zero field takes its default; the defaults
-// are those published with the paper (Laidig & Seel 2023, Sec. 4 and its
-// parameter table, quoted from memory) and suit any IMU without tuning.
-// Units are SI; the defaults are also given in the paper's units.
+// are those published with the paper (Laidig & Seel 2023), quoted from
+// memory and compared with the parameter documentation of the authors'
+// reference implementation (dlaidig/vqf, vqf.hpp); they suit any IMU
+// without tuning. Units are SI; each default is also given in the paper's
+// units.
 type Params struct {
 	// TauAcc is the time constant of the accelerometer low-pass in the
 	// almost-inertial frame, s. Default 3 s. Larger trusts the gyroscope
@@ -102,8 +104,8 @@ type Params struct {
 	MagRejectionFactor float64
 }
 
-// DefaultParams returns the published VQF defaults (Laidig & Seel 2023,
-// from memory), in SI units.
+// DefaultParams returns the published VQF defaults (Laidig & Seel 2023;
+// see Params), in SI units.
 func DefaultParams() Params {
 	return Params{
 		TauAcc:                       3,

@@ -18,10 +18,10 @@ import (
 // constant rate about a fixed axis), where rotvec is the rotation vector
 // (rot.ToRotVec). Where only one neighbour is usable the difference is
 // one-sided: rotvec(q[i+1] ⊗ q[i]*)·rate (first sample, or after an invalid
-// one) or rotvec(q[i] ⊗ q[i−1]*)·rate. The world vector is computed as
-// q[a] ⊗ ω_body ⊗ q[a]* (a the earlier sample of the pair), which equals the
-// formula above because conjugation by q[a] maps the relative rotation
-// q[a]* ⊗ q[b] onto q[b] ⊗ q[a]*.
+// one) or rotvec(q[i] ⊗ q[i−1]*)·rate. When body is wanted, the world
+// vector is computed from it as q[a] ⊗ ω_body ⊗ q[a]* (a the earlier sample
+// of the pair), which equals the formula above because conjugation by q[a]
+// maps the relative rotation q[a]* ⊗ q[b] onto q[b] ⊗ q[a]*.
 //
 // valid (nil: every sample valid) marks the usable samples: no difference
 // spans an invalid sample, and invalid samples, like valid ones with no
@@ -30,12 +30,22 @@ import (
 // Rotation.as_rotvec (testdata/golden/scipy/rotvec.json).
 func AngularVelocity(q []quat.Number, valid []bool, rate float64, world, body []r3.Vec) {
 	n := len(q)
-	if valid == nil && world != nil && body != nil && n >= 3 {
+	if valid == nil && world != nil && n >= 3 {
 		// Every sample valid: the central difference everywhere but at the
 		// ends, without the per-sample checks.
 		k := rate / 2
-		_, _ = world[n-1], body[n-1]
-		for i := 1; i < n-1; i++ {
+		_ = world[n-1]
+		if body != nil {
+			_ = body[n-1]
+		}
+		if body == nil {
+			// World only: rotvec(q[i+1] ⊗ q[i−1]*) directly.
+			for i := 1; i < n-1; i++ {
+				v := rotVec(rot.Mul(q[i+1], rot.Conj(q[i-1])))
+				world[i] = r3.Vec{X: v.X * k, Y: v.Y * k, Z: v.Z * k}
+			}
+		}
+		for i := 1; i < n-1 && body != nil; i++ {
 			a := q[i-1]
 			v := rotVec(rot.Mul(rot.Conj(a), q[i+1]))
 			v = r3.Vec{X: v.X * k, Y: v.Y * k, Z: v.Z * k}
@@ -48,7 +58,9 @@ func AngularVelocity(q []quat.Number, valid []bool, rate float64, world, body []
 				a, b = i-1, i
 			}
 			v := r3.Scale(rate, rotVec(rot.Mul(rot.Conj(q[a]), q[b])))
-			body[i] = v
+			if body != nil {
+				body[i] = v
+			}
 			world[i] = rot.Rotate(q[a], v)
 		}
 		return
@@ -91,9 +103,10 @@ func AngularVelocity(q []quat.Number, valid []bool, rate float64, world, body []
 
 // rotVec is rot.ToRotVec, 2·atan2(s, w)/s times the vector part (s its
 // norm, w ≥ 0 after choosing the sign), with atan(x)/x evaluated by its
-// Taylor series 1 − x²/3 + x⁴/5 − … for x = s/w ≤ 1/16, where nine terms
-// reach rounding (the next, x¹⁸/19, is below 2⁻⁷⁶). Neighbouring samples differ
-// by small rotations, so this avoids the atan2 call for nearly every sample.
+// Taylor series Σ_{j=0}^{7} (−x²)^j/(2j+1) for x = s/w ≤ 1/16, where eight
+// terms reach rounding (the next, x¹⁶/17, is below 2⁻⁶⁸), in Estrin's scheme
+// (pairs of terms combined in parallel). Neighbouring samples differ by
+// small rotations, so this avoids the atan2 call for nearly every sample.
 func rotVec(q quat.Number) r3.Vec {
 	w := q.Real
 	if w < 0 {
@@ -101,21 +114,19 @@ func rotVec(q quat.Number) r3.Vec {
 		w = -w
 	}
 	ss := q.Imag*q.Imag + q.Jmag*q.Jmag + q.Kmag*q.Kmag
-	if !(ss <= w*w/256) {
+	if !(ss <= w*w*(1.0/256)) {
 		return rot.ToRotVec(q)
 	}
-	x2 := ss / (w * w)
-	// Horner form of Σ_{j=0}^{8} (−x²)^j / (2j+1).
-	p := 1.0 / 17
-	p = 1.0/15 - x2*p
-	p = 1.0/13 - x2*p
-	p = 1.0/11 - x2*p
-	p = 1.0/9 - x2*p
-	p = 1.0/7 - x2*p
-	p = 1.0/5 - x2*p
-	p = 1.0/3 - x2*p
-	p = 1 - x2*p
-	k := 2 * p / w
+	iw := 1 / w
+	y := ss * iw * iw
+	y2 := y * y
+	y4 := y2 * y2
+	p01 := 1 - y*(1.0/3)
+	p23 := 1.0/5 - y*(1.0/7)
+	p45 := 1.0/9 - y*(1.0/11)
+	p67 := 1.0/13 - y*(1.0/15)
+	p := (p01 + y2*p23) + y4*(p45+y2*p67)
+	k := 2 * p * iw
 	return r3.Vec{X: q.Imag * k, Y: q.Jmag * k, Z: q.Kmag * k}
 }
 

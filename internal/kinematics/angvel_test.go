@@ -138,6 +138,13 @@ func TestAngularVelocityAgainstScipy(t *testing.T) {
 			t.Fatalf("body[%d] = %v, scipy %v", i, body[i], wb)
 		}
 	}
+	only := make([]r3.Vec, n)
+	AngularVelocity(q, nil, g.Fs, only, nil)
+	for i := range only {
+		if d := r3.Norm(r3.Sub(only[i], world[i])); d > 1e-10*r3.Norm(world[i]) {
+			t.Fatalf("world-only world[%d] = %v, with body %v", i, only[i], world[i])
+		}
+	}
 	if big < 0.5 {
 		t.Errorf("golden trajectory too slow to test large angles (max %g rad per sample)", big)
 	}

@@ -6,7 +6,6 @@ import (
 	"syscall"
 	"testing"
 
-	"gonum.org/v1/gonum/num/quat"
 	"gonum.org/v1/gonum/spatial/r3"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
@@ -17,16 +16,19 @@ import (
 
 // benchCapture is a 3 s, six-segment, 1 kHz capture of closed-form swing
 // motions, each sensor mounted with a random rotation and carrying
-// gyroscope and accelerometer columns, with a neutral window.
-func benchCapture() *capture.Capture {
+// gyroscope and accelerometer columns, with a neutral window in which the
+// segments are nearly still (no warnings).
+func benchCapture() *capture.Capture { return benchCaptureAt(1000) }
+
+func benchCaptureAt(rate float64) *capture.Capture {
 	r := rand.New(rand.NewPCG(101, 102))
 	deg := math.Pi / 180
 	segs := []kinchainv1.Segment{pelvis, thorax, kinchainv1.Segment_SEGMENT_LEAD_UPPER_ARM,
 		kinchainv1.Segment_SEGMENT_LEAD_FOREARM, hand, club}
 	c := &capture.Capture{ID: "bench", Neutral: &capture.Window{Start: 0, End: 0.3}}
 	for k, s := range segs {
-		m := swingMotion{randUnit(r), (500 + 350*float64(k)) * deg, 1.8 + 0.02*float64(k), 0.08 - 0.007*float64(k), 0.1 * float64(k), 1.1}
-		tr := track(s, m, 1000, 3, randUnit(r))
+		m := swingMotion{randUnit(r), (500 + 350*float64(k)) * deg, 1.8 + 0.02*float64(k), 0.08 - 0.007*float64(k), 0.02 * float64(k), 1.1}
+		tr := track(s, m, rate, 3, randUnit(r))
 		tr.Accel = make([]r3.Vec, len(tr.Time))
 		for i, q := range tr.Q {
 			tr.Accel[i] = rot.InvRotate(q, r3.Vec{Z: condition.StandardGravity})
@@ -103,39 +105,28 @@ func BenchmarkCompute(b *testing.B) {
 }
 
 // TestPipelineAllocations checks that allocations grow with the number of
-// tracks, not with their length: doubling the samples per track must not
-// change the allocation count.
+// tracks, not with their length: quadrupling the samples per track (500 Hz
+// to 2 kHz, 9000 more samples) must leave the allocation count unchanged,
+// but for ±3: the sync.Pool workspaces of fmt and gonum/mat are emptied by
+// garbage collections, whose number depends on the bytes allocated.
 func TestPipelineAllocations(t *testing.T) {
 	count := func(rate float64) float64 {
-		c := benchCapture()
-		for i := range c.Tracks {
-			tr := &c.Tracks[i]
-			n := int(float64(len(tr.Time)) * rate / 1000)
-			tr.Time, tr.Q, tr.Gyro, tr.Accel = resize(tr.Time, n, rate), make([]quat.Number, n), make([]r3.Vec, n), make([]r3.Vec, n)
-			for j := range tr.Q {
-				tr.Q[j] = rot.FromRotVec(r3.Vec{X: float64(j) / rate})
-			}
-		}
+		c := benchCaptureAt(rate)
 		return testing.AllocsPerRun(5, func() {
 			cond, err := condition.Run(c, condition.Options{})
 			if err != nil {
 				t.Fatal(err)
+			}
+			if len(cond.Warnings) != 0 {
+				t.Fatalf("warnings %v", cond.Warnings)
 			}
 			if _, err := Compute(cond, Options{}); err != nil {
 				t.Fatal(err)
 			}
 		})
 	}
-	a, b := count(500), count(1000)
-	if a != b {
-		t.Errorf("allocations %v at 500 Hz, %v at 1000 Hz: they grow with the samples", a, b)
+	a, b := count(500), count(2000)
+	if math.Abs(a-b) > 3 {
+		t.Errorf("allocations %v at 500 Hz, %v at 2 kHz: they grow with the samples", a, b)
 	}
-}
-
-func resize(_ []float64, n int, rate float64) []float64 {
-	t := make([]float64, n)
-	for i := range t {
-		t[i] = float64(i) / rate
-	}
-	return t
 }

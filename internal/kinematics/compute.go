@@ -4,10 +4,12 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/num/quat"
 	"gonum.org/v1/gonum/spatial/r3"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/condition"
+	"github.com/kinchain/kinchain/internal/rot"
 )
 
 // Filter defaults.
@@ -73,13 +75,23 @@ func (o Options) check() error {
 	return nil
 }
 
-// Compute derives the kinematics of every conditioned segment: angular
-// velocity (AngularVelocity, or FromGyro when asked and available), each of
-// its world and segment-frame components low-pass filtered by the
-// zero-phase Butterworth filter of condition (separately over each run of
-// valid samples), and the selected speed (Speeds). Result.Warnings holds
-// this stage's warnings only (a clamped cutoff); the conditioning warnings
-// stay in r.Warnings.
+// Compute derives the kinematics of every conditioned segment:
+//
+//  1. the world angular velocity, from orientation differences
+//     (AngularVelocity) or, when asked and available, the gyroscope
+//     (FromGyro: ω_world = q ⊗ gyro ⊗ q*);
+//  2. each of its components low-pass filtered by the zero-phase
+//     Butterworth filter of condition, separately over each run of valid
+//     samples (filtering a vector's components commutes with constant
+//     rotations, so speeds stay frame-invariant; unit norm and continuity of
+//     the orientations are not touched);
+//  3. the segment-frame angular velocity as the filtered world vector in the
+//     segment frame at the same sample, ω_body = q* ⊗ ω_world ⊗ q, so that
+//     Omega and OmegaBody always describe the same vector;
+//  4. the selected speed (Speeds).
+//
+// Result.Warnings holds this stage's warnings only (a clamped cutoff); the
+// conditioning warnings stay in r.Warnings.
 func Compute(r *condition.Result, opt Options) (*Result, error) {
 	if err := opt.check(); err != nil {
 		return nil, err
@@ -132,7 +144,7 @@ func Compute(r *condition.Result, opt Options) (*Result, error) {
 		if opt.Source == kinchainv1.AngularVelocitySource_ANGULAR_VELOCITY_SOURCE_GYROSCOPE && cs.Gyro != nil {
 			FromGyro(s.Q, cs.Gyro, s.Valid, s.Omega, s.OmegaBody)
 		} else {
-			AngularVelocity(s.Q, s.Valid, fs, s.Omega, s.OmegaBody)
+			AngularVelocity(s.Q, s.Valid, fs, s.Omega, nil)
 		}
 		f := fixed
 		if f != nil {
@@ -157,12 +169,24 @@ func Compute(r *condition.Result, opt Options) (*Result, error) {
 		if f != nil {
 			forRuns(s.Valid, n, func(lo, hi int) {
 				f.ApplyVec(s.Omega[lo:hi], s.Omega[lo:hi])
-				f.ApplyVec(s.OmegaBody[lo:hi], s.OmegaBody[lo:hi])
 			})
 		}
+		toBody(s.Q, s.Omega, s.Valid, s.OmegaBody)
 		Speeds(speed, s.Omega, s.OmegaBody, s.Valid, s.Speed)
 	}
 	return out, nil
+}
+
+// toBody sets body[i] = q[i]* ⊗ world[i] ⊗ q[i], the world angular velocity
+// in the segment frame at the same sample (zero at invalid samples).
+func toBody(q []quat.Number, world []r3.Vec, valid []bool, body []r3.Vec) {
+	for i := range q {
+		if valid != nil && !valid[i] {
+			body[i] = r3.Vec{}
+			continue
+		}
+		body[i] = rot.InvRotate(q[i], world[i])
+	}
 }
 
 // clampCutoff lowers a cutoff at or above the Nyquist frequency fs/2 to

@@ -27,7 +27,7 @@ import (
 // which turns a left limb into the equivalent right limb: every ISB angle then
 // keeps its anatomical meaning (internal rotation, flexion, … positive on
 // both sides). For a quaternion the reflection is (w, x, y, z) → (w, −x, y, −z).
-// NOTES-posture.md (merged into DEVELOPERS.md) has the full tables.
+// DEVELOPERS.md (joint angles and posture) has the full tables.
 
 // GimbalLockMargin is how close, in rad, the middle angle of a sequence may
 // come to its singular value before the angles are flagged NearGimbalLock:
@@ -106,7 +106,7 @@ type BodyAngles struct {
 	NearGimbalLock bool
 }
 
-// BodyAnglesOf returns the intrinsic Z-Y'-X” Cardan angles of frame seg
+// BodyAnglesOf returns the intrinsic Z-Y′-X″ Cardan angles of frame seg
 // relative to frame ref: p* ⊗ d = Rz(axial) · Ry(flexion) · Rx(lateral bend),
 // each angle by the right-hand rule about our axes (rad; axial and lateral in
 // (−π, π], flexion in [−π/2, π/2]). With x anterior, y left and z up, a
@@ -136,12 +136,12 @@ func BodyAnglesOf(ref, seg quat.Number) BodyAngles {
 // in the sequence of the ISB spine joint coordinate system (Wu et al. 2002,
 // J Biomech 35:543–548): flexion/extension about the reference's
 // mediolateral axis (ISB Z), then lateral bending about the floating axis
-// (ISB X'), then axial rotation about the segment's long axis (ISB Y”). On
+// (ISB X′), then axial rotation about the segment's long axis (ISB Y″). On
 // our axes ISB Z = −y, X = +x, Y = +z, so
 //
 //	p* ⊗ d = R−y(α) Rx(β) Rz(γ) = Ry(−α) · Rx(β) · Rz(γ),
 //
-// the intrinsic Y-X'-Z” sequence on our axes. The right-hand rule about ISB
+// the intrinsic Y-X′-Z″ sequence on our axes. The right-hand rule about ISB
 // +Z (pointing right) makes a forward bend of a segment above its joint
 // negative; the result is reported with the same signs as BodyAnglesOf
 // (flexion = −α positive forward, lateral bend = β positive to the right,
@@ -175,15 +175,15 @@ type ArmAngles struct {
 }
 
 // HumerothoracicAngles returns the humerus orientation relative to the
-// thorax by the ISB Y-X'-Y” sequence (Wu et al. 2005, J Biomech 38:981–992,
+// thorax by the ISB Y-X′-Y″ sequence (Wu et al. 2005, J Biomech 38:981–992,
 // humerothoracic joint): R = RY(plane of elevation) · RX(−elevation) ·
 // RY(axial rotation) with ISB Y the thorax's (then the humerus') long axis and
 // X the anterior axis. On our axes ISB Y = +z and X = +x, so the sequence is
-// Z-X'-Z” on our axes after the left arm has been reflected to the right
-// (see the package notes). Plane 0 is abduction, π/2 forward flexion;
+// Z-X′-Z″ on our axes after the left arm has been reflected to the right
+// (see the axes table at the top of this file). Plane 0 is abduction, π/2 forward flexion;
 // elevation is in [0, π]; axial rotation positive internal.
 //
-// rot.Euler returns the Z-X'-Z” solution with the middle angle b ∈ [0, π];
+// rot.Euler returns the Z-X′-Z″ solution with the middle angle b ∈ [0, π];
 // the ISB middle angle is −elevation, so the solution used is
 // (a + π, −b, c − π): plane = a + π, elevation = b, axial = c − π.
 //
@@ -229,10 +229,10 @@ type WristAngles struct {
 // WristAnglesOf returns the hand orientation relative to the forearm by the
 // ISB wrist joint coordinate system (Wu et al. 2005, J Biomech 38:981–992):
 // flexion/extension about the forearm's Z axis (radial), then deviation about
-// the floating X' axis (volar), then rotation about the hand's Y” axis
+// the floating X′ axis (volar), then rotation about the hand's Y″ axis
 // (proximal). In our neutral pose the palm faces the thigh and the thumb
 // points forward, so for the right hand ISB X (volar) = our +y, Y (proximal)
-// = our +z, Z (radial) = our +x: the ISB Z-X'-Y” sequence is X-Y'-Z” on our
+// = our +z, Z (radial) = our +x: the ISB Z-X′-Y″ sequence is X-Y′-Z″ on our
 // axes after the left hand has been reflected to the right. By the right-hand
 // rule about ISB Z flexion is positive (as ISB reports it); about ISB X
 // ulnar deviation is positive, so RadialDeviation is the negated second angle.
@@ -264,10 +264,10 @@ type ElbowAngles struct {
 // ElbowAnglesOf returns the forearm orientation relative to the upper arm by
 // the ISB elbow joint coordinate system (Wu et al. 2005, J Biomech
 // 38:981–992): flexion about the humerus' Z axis, then the carrying angle
-// about the floating X' axis, then pronation/supination about the forearm's
-// Y” axis. With both segments on our axes (ISB X = +x, Y = +z, Z = −y on the
+// about the floating X′ axis, then pronation/supination about the forearm's
+// Y″ axis. With both segments on our axes (ISB X = +x, Y = +z, Z = −y on the
 // right side) this is R−y(α) Rx(β) Rz(γ) = Ry(−α) · Rx(β) · Rz(γ), the
-// intrinsic Y-X'-Z” sequence on our axes, after reflecting a left arm to
+// intrinsic Y-X′-Z″ sequence on our axes, after reflecting a left arm to
 // the right. Flexion = α (the first angle negated), valgus = −β (the
 // right-hand rule about ISB X gives varus positive), pronation = γ.
 //

@@ -255,7 +255,7 @@ func TestBodyAnglesSinglePlane(t *testing.T) {
 	}
 	for _, c := range cases {
 		q := frame(t, c.x, c.y, c.z)
-		for name, a := range map[string]BodyAngles{"Z-Y'-X''": BodyAnglesOf(rot.Identity, q), "ISB": BodyAnglesISB(rot.Identity, q)} {
+		for name, a := range map[string]BodyAngles{"Z-Y′-X″": BodyAnglesOf(rot.Identity, q), "ISB": BodyAnglesISB(rot.Identity, q)} {
 			if math.Abs(a.Flexion-c.flexion*deg) > 1e-12 || math.Abs(a.LateralBend-c.lateral*deg) > 1e-12 || math.Abs(a.AxialRotation-c.axial*deg) > 1e-12 {
 				t.Errorf("%s (%s): flexion %.6f lateral %.6f axial %.6f deg, want %g %g %g", c.name, name,
 					a.Flexion/deg, a.LateralBend/deg, a.AxialRotation/deg, c.flexion, c.lateral, c.axial)
@@ -270,17 +270,17 @@ func TestBodyAnglesSinglePlane(t *testing.T) {
 // Closed form: the two sequences differ once rotations combine, each
 // reproducing its own definition. A turn of 40° followed by a forward bend of
 // 30° about the turned mediolateral axis is exactly axial 40, flexion 30 in
-// Z-Y'-X”; ISB (flexion first) reads it differently, yet its angles
+// Z-Y′-X″; ISB (flexion first) reads it differently, yet its angles
 // rebuild the same rotation.
 func TestBodyAnglesSequencesDiffer(t *testing.T) {
 	q := rot.Mul(rot.FromAxisAngle(ez, 40*deg), rot.FromAxisAngle(ey, 30*deg))
 	a := BodyAnglesOf(rot.Identity, q)
 	if math.Abs(a.AxialRotation-40*deg) > 1e-12 || math.Abs(a.Flexion-30*deg) > 1e-12 || math.Abs(a.LateralBend) > 1e-12 {
-		t.Fatalf("Z-Y'-X'': %+v", a)
+		t.Fatalf("Z-Y′-X″: %+v", a)
 	}
 	b := BodyAnglesISB(rot.Identity, q)
 	if math.Abs(b.Flexion-30*deg) < 1*deg && math.Abs(b.AxialRotation-40*deg) < 1*deg {
-		t.Fatalf("ISB sequence read the combined rotation like Z-Y'-X'': %+v", b)
+		t.Fatalf("ISB sequence read the combined rotation like Z-Y′-X″: %+v", b)
 	}
 	if back := rot.FromEuler(seqYXZ, b.Flexion, b.LateralBend, b.AxialRotation); qdist(back, q) > 1e-12 {
 		t.Fatalf("ISB angles %+v do not rebuild the rotation (off %g)", b, qdist(back, q))
@@ -302,7 +302,7 @@ func TestBodyAnglesRelativeToReference(t *testing.T) {
 	}
 }
 
-// Gimbal lock of Z-Y'-X” at flexion 90°: flagged, lateral bend set to 0,
+// Gimbal lock of Z-Y′-X″ at flexion 90°: flagged, lateral bend set to 0,
 // and the angles still rebuild the rotation.
 func TestBodyAnglesGimbalLock(t *testing.T) {
 	q := rot.FromEuler(rot.ZYX, 0.4, math.Pi/2, 0.3)
@@ -343,7 +343,7 @@ func TestHumerothoracicClosedForm(t *testing.T) {
 		{"left abduction 90", SideLeft, ex, ez, neg(ey), 0, 90, 0, false},
 		{"right abduction 90", SideRight, ex, neg(ez), ey, 0, 90, 0, false},
 		// Forward flexion 90° about the mediolateral axis: distal toward +x.
-		// Y-X'-Y'' reads this single rotation about a fixed horizontal axis
+		// Y-X′-Y″ reads this single rotation about a fixed horizontal axis
 		// as plane 90°, elevation 90° and axial rotation −90° (Codman's
 		// paradox). Closed form on our axes: Ry(−90°) = Rz(90°)·Rx(−90°)·
 		// Rz(−90°), checked by TestCodmanIdentity.
@@ -440,7 +440,7 @@ func TestMirrorLeftRight(t *testing.T) {
 }
 
 // Closed form: a single rotation of −90° about the mediolateral axis equals
-// the Y-X'-Y” (our Z-X'-Z”) angles plane 90°, −elevation −90°, axial −90°.
+// the Y-X′-Y″ (our Z-X′-Z″) angles plane 90°, −elevation −90°, axial −90°.
 func TestCodmanIdentity(t *testing.T) {
 	a := rot.FromAxisAngle(ey, -90*deg)
 	b := rot.FromEuler(seqZXZ, 90*deg, -90*deg, -90*deg)

@@ -19,7 +19,8 @@ type Segment struct {
 	Valid []bool
 	// Omega is the filtered angular velocity in the world frame, rad/s.
 	Omega []r3.Vec
-	// OmegaBody is the filtered angular velocity in the segment frame, rad/s.
+	// OmegaBody is the filtered angular velocity in the segment frame, rad/s:
+	// Omega[i] expressed in the frame Q[i].
 	OmegaBody []r3.Vec
 	// Speed is the scalar speed per the selected definition, rad/s, from the
 	// filtered angular velocity.

@@ -48,7 +48,7 @@
 //
 // The picture is 4:5 (width:height); Options.WidthPx defaults to 800 px
 // (1000 px high), which is the size every element is laid out for, and may
-// be 400 to 4000 px. SVG output is 0.75 pt per px (so a browser shows it
+// be 400 to 2400 px. SVG output is 0.75 pt per px (so a browser shows it
 // WidthPx wide) and is scaled as a whole; PNG output is rendered at the
 // resolution that makes it exactly WidthPx wide, so text stays sharp.
 //

@@ -52,10 +52,11 @@ type HandlerConfig struct {
 	// (bad input: INVALID_ARGUMENT with errdetails.BadRequest field
 	// violations), *runtime.HTTPStatusError for statuses that no gRPC code
 	// maps to (406, 413, 415, 405), and the Analyzer's errors unchanged.
-	// Default: the JSON of the google.rpc.Status with the HTTP status of its
-	// code, as the gateway writes it; *validate.Error values become
-	// INVALID_ARGUMENT with field violations, context errors CANCELED or
-	// DEADLINE_EXCEEDED, anything else INTERNAL (its text not shown).
+	// Default: the JSON of the google.rpc.Status (proto field names) with
+	// the HTTP status of its code, as the gateway writes it; *validate.Error
+	// values become INVALID_ARGUMENT with field violations, context errors
+	// CANCELED or DEADLINE_EXCEEDED, anything else INTERNAL (its text not
+	// shown).
 	WriteError func(w http.ResponseWriter, r *http.Request, err error)
 }
 
@@ -234,7 +235,7 @@ func writeError(w http.ResponseWriter, _ *http.Request, err error) {
 	if code == 0 {
 		code = runtime.HTTPStatusFromCode(st.Code())
 	}
-	b, merr := protojson.Marshal(st.Proto())
+	b, merr := protojson.MarshalOptions{UseProtoNames: true}.Marshal(st.Proto())
 	if merr != nil {
 		b = []byte(`{"code":13,"message":"internal error"}`)
 	}

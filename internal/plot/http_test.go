@@ -71,7 +71,7 @@ type rpcStatus struct {
 		Type            string `json:"@type"`
 		FieldViolations []struct {
 			Field, Description, Reason string
-		} `json:"fieldViolations"`
+		} `json:"field_violations"`
 	} `json:"details"`
 }
 

@@ -3,6 +3,7 @@ package plot
 import (
 	"fmt"
 	"strings"
+	"unicode"
 
 	"gonum.org/v1/plot/text"
 	"gonum.org/v1/plot/vg"
@@ -51,7 +52,8 @@ func (v *view) drawHeader(c draw.Canvas, left, right, top vg.Length) {
 	if id := v.resp.GetCaptureId(); id != "" {
 		title += " · " + id
 	}
-	c.FillText(textStyle(sansBold, sizeTitle, inkText, draw.XLeft, draw.YTop), vg.Point{X: left, Y: top}, title)
+	sty := textStyle(sansBold, sizeTitle, inkText, draw.XLeft, draw.YTop)
+	c.FillText(sty, vg.Point{X: left, Y: top}, fit(sty, title, right-left))
 
 	var parts []string
 	switch v.resp.GetHandedness() {
@@ -71,6 +73,27 @@ func (v *view) drawHeader(c draw.Canvas, left, right, top vg.Length) {
 	c.FillText(textStyle(sans, sizeNote+0.5, inkMuted, draw.XLeft, draw.YTop), vg.Point{X: left, Y: top - 19}, strings.Join(parts, "  ·  "))
 
 	c.StrokeLine2(draw.LineStyle{Color: inkRule, Width: 0.6}, left, top-headerHeight+8, right, top-headerHeight+8)
+}
+
+// fit returns s without the characters that cannot appear in SVG text
+// (controls), shortened with an ellipsis to at most width w in style sty.
+func fit(sty text.Style, s string, w vg.Length) string {
+	s = strings.Map(func(r rune) rune {
+		if !unicode.IsPrint(r) {
+			return -1
+		}
+		return r
+	}, s)
+	if sty.Width(s) <= w {
+		return s
+	}
+	rs := []rune(s)
+	for n := len(rs) - 1; n > 0; n-- {
+		if t := string(rs[:n]) + "…"; sty.Width(t) <= w {
+			return t
+		}
+	}
+	return "…"
 }
 
 // speedName describes the speed definition in words.

@@ -36,7 +36,7 @@ func (f Format) ContentType() string {
 const (
 	DefaultWidthPx = 800
 	MinWidthPx     = 400
-	MaxWidthPx     = 4000
+	MaxWidthPx     = 2400
 )
 
 // Options tune Render. The zero value draws an 800 px wide SVG of the
@@ -45,7 +45,8 @@ type Options struct {
 	// Format is the image format; "" means SVG.
 	Format Format
 	// WidthPx is the image width in pixels (default 800, allowed 400 to
-	// 4000); the height is 1.25 × the width.
+	// 2400, which bounds a PNG's raster to 22 MB); the height is 1.25 × the
+	// width.
 	WidthPx int
 	// Segments, when set, are the segments whose speed curves are drawn, in
 	// this order. Default: the links of the kinetic chain the gains compare
@@ -55,7 +56,8 @@ type Options struct {
 	Segments []kinchainv1.Segment
 	// FromMs and ToMs are the time window of the speed panel relative to
 	// impact, ms. Both zero: automatic, from shortly before the takeaway (or
-	// the top) to 150–400 ms after impact, within the series' time span.
+	// the top) to 150–400 ms after impact, or just past an early finish,
+	// within the series' time span.
 	FromMs, ToMs float64
 	// EmbedFonts embeds the Liberation Sans font files in SVG output (about
 	// 1 MB) so that the text renders identically everywhere.
@@ -389,7 +391,7 @@ func (v *view) readCurves(opt Options) error {
 		return inputErrorf("segments[].series", "the series (%.0f..%.0f ms from impact) do not overlap the plot window", t0, t1)
 	}
 	for _, c := range full {
-		v.curves = append(v.curves, c.cut(v.fromMs, v.toMs))
+		v.curves = append(v.curves, c.cut(v.fromMs, v.toMs).decimate(v.fromMs, v.toMs, curveBuckets))
 	}
 	for _, c := range v.curves {
 		for k, s := range c.Speed {
@@ -410,7 +412,9 @@ func (v *view) readCurves(opt Options) error {
 
 // window sets the speed panel's time window: the requested one, or from a
 // margin before the takeaway (else the lead arm level in the backswing, else
-// the top) to a margin after impact; clipped to the series span [t0, t1].
+// the top) to a margin after impact (25 % of the takeaway-to-impact span,
+// 150 to 400 ms) or after the finish when that comes within half the span
+// (at least 400 ms); clipped to the series span [t0, t1].
 func (v *view) window(opt Options, t0, t1 float64) {
 	if opt.FromMs != 0 || opt.ToMs != 0 {
 		v.fromMs, v.toMs = math.Max(opt.FromMs, t0), math.Min(opt.ToMs, t1)
@@ -430,7 +434,54 @@ func (v *view) window(opt Options, t0, t1 float64) {
 	span := -start
 	from := start - math.Max(0.08*span, 50)
 	to := math.Min(math.Max(0.25*span, 150), 400)
+	// A finish soon after impact is shown too.
+	if f, ok := v.event(kinchainv1.EventKind_EVENT_KIND_FINISH); ok && f > 0 && f <= math.Max(0.5*span, 400) {
+		to = math.Max(to, f+math.Max(0.05*span, 30))
+	}
 	v.fromMs, v.toMs = math.Max(from, t0), math.Min(to, t1)
+}
+
+// curveBuckets is the number of time buckets a drawn curve keeps at most
+// two samples of: about one per point of the speed panel's width, finer than
+// the eye resolves at any allowed size.
+const curveBuckets = 400
+
+// decimate thins a curve to at most the minimum and the maximum sample of
+// each of n equal time buckets spanning [from, to], in time order, keeping
+// the first and last samples (min-max decimation: the drawn envelope and
+// every peak stay exact). Curves with at most 2n+2 samples are returned as
+// they are.
+func (c curve) decimate(from, to float64, n int) curve {
+	if len(c.Ms) <= 2*n+2 || !(to > from) {
+		return c
+	}
+	out := curve{Segment: c.Segment, Ms: []float64{c.Ms[0]}, Speed: []float64{c.Speed[0]}}
+	add := func(i int) {
+		if last := len(out.Ms) - 1; out.Ms[last] == c.Ms[i] {
+			return
+		}
+		out.Ms = append(out.Ms, c.Ms[i])
+		out.Speed = append(out.Speed, c.Speed[i])
+	}
+	width := (to - from) / float64(n)
+	for i := 1; i < len(c.Ms)-1; {
+		b := math.Floor((c.Ms[i] - from) / width)
+		lo, hi := i, i
+		j := i
+		for ; j < len(c.Ms)-1 && math.Floor((c.Ms[j]-from)/width) == b; j++ {
+			if c.Speed[j] < c.Speed[lo] {
+				lo = j
+			}
+			if c.Speed[j] > c.Speed[hi] {
+				hi = j
+			}
+		}
+		add(min(lo, hi))
+		add(max(lo, hi))
+		i = j
+	}
+	add(len(c.Ms) - 1)
+	return out
 }
 
 // cut keeps the samples inside [from, to] plus one on each side, so the

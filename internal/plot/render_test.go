@@ -196,6 +196,57 @@ func anyTextContains(d svgDoc, s string) bool {
 	return false
 }
 
+func TestDecimate(t *testing.T) {
+	// 5001 samples of a sharp peak over 1000 ms.
+	c := curve{}
+	for i := 0; i <= 5000; i++ {
+		ms := float64(i) / 5
+		c.Ms = append(c.Ms, ms)
+		c.Speed = append(c.Speed, 1000*math.Exp(-math.Pow((ms-612.3)/4, 2))+50*math.Sin(ms))
+	}
+	d := c.decimate(0, 1000, 100)
+	if len(d.Ms) > 2*100+2 || len(d.Ms) != len(d.Speed) {
+		t.Fatalf("%d samples kept", len(d.Ms))
+	}
+	maxOf := func(x []float64) float64 {
+		m := math.Inf(-1)
+		for _, v := range x {
+			m = math.Max(m, v)
+		}
+		return m
+	}
+	minOf := func(x []float64) float64 {
+		return -maxOf(func() []float64 {
+			y := make([]float64, len(x))
+			for i := range x {
+				y[i] = -x[i]
+			}
+			return y
+		}())
+	}
+	if maxOf(d.Speed) != maxOf(c.Speed) || minOf(d.Speed) != minOf(c.Speed) {
+		t.Errorf("extremes changed: max %v → %v, min %v → %v", maxOf(c.Speed), maxOf(d.Speed), minOf(c.Speed), minOf(d.Speed))
+	}
+	if d.Ms[0] != 0 || d.Ms[len(d.Ms)-1] != 1000 {
+		t.Errorf("ends %v..%v", d.Ms[0], d.Ms[len(d.Ms)-1])
+	}
+	for i := 1; i < len(d.Ms); i++ {
+		if !(d.Ms[i] > d.Ms[i-1]) {
+			t.Fatalf("time order broken at %d", i)
+		}
+	}
+	// Every kept sample is an original one.
+	for i, ms := range d.Ms {
+		k := int(math.Round(ms * 5))
+		if c.Ms[k] != ms || c.Speed[k] != d.Speed[i] {
+			t.Fatalf("sample %d (%v ms) is not an original", i, ms)
+		}
+	}
+	if s := (curve{Ms: c.Ms[:50], Speed: c.Speed[:50]}).decimate(0, 10, 100); len(s.Ms) != 50 {
+		t.Errorf("short curve thinned to %d", len(s.Ms))
+	}
+}
+
 func TestWindowOption(t *testing.T) {
 	d := renderSVG(t, fixture(), Options{FromMs: -300, ToMs: 100})
 	ax, _ := axisMap(t, d, "time from impact (ms)")
@@ -277,6 +328,44 @@ func TestWidthScalesSVG(t *testing.T) {
 	if !strings.Contains(string(b), `transform="scale(1.5,1.5)"`) {
 		t.Error("1200 px SVG is not the 800 px layout scaled by 1.5")
 	}
+}
+
+// TestHostileText: control characters in names cannot break the XML, and a
+// long capture id is shortened to the page.
+func TestHostileText(t *testing.T) {
+	r := fixture()
+	r.CaptureId = "bad\x00id\x1b[31m <&> " + strings.Repeat("long-", 60)
+	b, err := Render(r, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := parseSVG(t, b)
+	found := false
+	for _, tx := range d.Texts {
+		if strings.HasPrefix(tx.Content, "Swing 0 · badid[31m <&> long-") && strings.HasSuffix(tx.Content, "…") {
+			found = true
+		}
+	}
+	if !found {
+		t.Error("title not sanitised and shortened")
+	}
+}
+
+// TestEmbedFonts: the fonts are embedded on request, and the SVG stays XML.
+func TestEmbedFonts(t *testing.T) {
+	b, err := Render(fixture(), 0, Options{EmbedFonts: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	parseSVG(t, b)
+	if n := bytes.Count(b, []byte("@font-face")); n != 2 { // regular and bold
+		t.Errorf("%d embedded fonts, want 2", n)
+	}
+	plain, _ := Render(fixture(), 0, Options{})
+	if bytes.Contains(plain, []byte("@font-face")) {
+		t.Error("fonts embedded without EmbedFonts")
+	}
+	t.Logf("SVG %d bytes, with fonts %d bytes", len(plain), len(b))
 }
 
 func TestPNG(t *testing.T) {
@@ -367,7 +456,7 @@ func TestRenderErrors(t *testing.T) {
 		}), 0, Options{}, "segments[].series"},
 		{"bad format", fixture(), 0, Options{Format: "gif"}, "format"},
 		{"too narrow", fixture(), 0, Options{WidthPx: 399}, "width"},
-		{"too wide", fixture(), 0, Options{WidthPx: 4001}, "width"},
+		{"too wide", fixture(), 0, Options{WidthPx: 2401}, "width"},
 		{"reversed window", fixture(), 0, Options{FromMs: 10, ToMs: -10}, "window"},
 		{"segment not in response", fixture(), 0, Options{Segments: []kinchainv1.Segment{kinchainv1.Segment_SEGMENT_HEAD}}, "segments[0]"},
 		{"segment twice", fixture(), 0, Options{Segments: []kinchainv1.Segment{kinchainv1.Segment_SEGMENT_CLUB, kinchainv1.Segment_SEGMENT_CLUB}}, "segments[1]"},

@@ -2,6 +2,7 @@ package server
 
 import (
 	"bufio"
+	"bytes"
 	"context"
 	"errors"
 	"io"
@@ -18,6 +19,7 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/api/openapi"
@@ -35,9 +37,38 @@ const (
 // gatewayMarshaler writes and reads protojson with the proto field names,
 // as the OpenAPI document describes them; reading also accepts the
 // lowerCamelCase JSON names and rejects unknown fields.
-var gatewayMarshaler = &runtime.JSONPb{
+var gatewayMarshaler = &protoJSON{runtime.JSONPb{
 	MarshalOptions:   protojson.MarshalOptions{UseProtoNames: true},
 	UnmarshalOptions: protojson.UnmarshalOptions{DiscardUnknown: false},
+}}
+
+// protoJSON is runtime.JSONPb with a faster request decoder: the body is
+// read whole (it is bounded by the body limit) and decoded at once, instead
+// of being scanned by encoding/json into a RawMessage first and parsed
+// again; an AnalyzeCaptureRequest goes through decodeRequestJSON's fast
+// path for sample arrays (see fastjson.go and NOTES-server.md).
+type protoJSON struct{ runtime.JSONPb }
+
+// NewDecoder returns a decoder that reads r to the end and unmarshals it;
+// an empty body is io.EOF (an empty request, as the gateway expects).
+func (m *protoJSON) NewDecoder(r io.Reader) runtime.Decoder {
+	return runtime.DecoderFunc(func(v any) error {
+		b, err := io.ReadAll(r)
+		if err != nil {
+			return err
+		}
+		if len(bytes.TrimSpace(b)) == 0 {
+			return io.EOF
+		}
+		if req, ok := v.(*kinchainv1.AnalyzeCaptureRequest); ok {
+			return decodeRequestJSON(b, m.UnmarshalOptions, req)
+		}
+		pm, ok := v.(proto.Message)
+		if !ok {
+			return m.JSONPb.Unmarshal(b, v)
+		}
+		return m.UnmarshalOptions.Unmarshal(b, pm)
+	})
 }
 
 // newHTTPHandler builds the HTTP listener's mux: the gateway (registered

@@ -83,7 +83,7 @@ func (s *Session) checkBatch(b *kinchainv1.SampleBatch, idx []int) ([]int, error
 
 // checkTrack checks track i of a batch against its segment's state st.
 func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
-	name := segmentName(st.seg)
+	name := st.name
 	if t.GetMounting() != nil {
 		return batchErr(i, "mounting", -1, validate.ReasonBadValue, "mountings go in the header (header.mountings), not in batches")
 	}

@@ -143,8 +143,8 @@ const armHistory = 8
 // through the causal low-pass; its magnitude v is the speed. φ is the
 // in-plane angle of the driver's pointer (its −z axis) from its address
 // direction, in the plane fixed by the first PlaneAngle of movement and
-// signed so that the backswing is negative; its rate dφ/dt is the backward
-// difference of φ through the same low-pass. Times derived from filtered
+// signed so that the backswing is negative; its rate dφ/dt comes from the
+// filtered angular velocity (angleRate). Times derived from filtered
 // signals are moved earlier by the filter's group delay tau; impact comes
 // from the unfiltered φ and needs no correction.
 type detector struct {
@@ -153,7 +153,7 @@ type detector struct {
 	gyroOnly bool
 	axis     r3.Vec // the pointer in the sensor frame
 	gapBound float64
-	lpW, lpR causal
+	lpW      causal
 	filtered bool
 	tau      float64 // group delay of the low-pass at 0 Hz, s
 
@@ -168,9 +168,14 @@ type detector struct {
 	qpos, qcnt    int
 	qsum, quiet   float64
 	still, onset  float64
-	lastStill     float64
-	qStill        quat.Number
-	lastStillSeen bool
+	lastStill float64
+	qStill    quat.Number
+
+	// The current rise above the onset level: where it began (takeaway and
+	// address estimates) and the orientation just before it.
+	aboveOnset     bool
+	upTake, upAddr float64
+	qOnset, qUp    quat.Number
 
 	ph         phase
 	start      float64 // first moving sample of the candidate
@@ -210,7 +215,6 @@ func newDetector(seg kinchainv1.Segment, rate, cutoff float64, axis r3.Vec, gyro
 		if d.lpW, err = newCausal(2, cutoff, rate); err != nil {
 			return nil, err
 		}
-		d.lpR = d.lpW
 		d.filtered = true
 		d.tau = groupDelay(&d.lpW) / rate
 	}
@@ -259,7 +263,7 @@ func (d *detector) emit(k kinchainv1.EventKind, t, at float64) {
 // abandon ends the candidate without a swing.
 func (d *detector) abandon(t float64, q quat.Number) {
 	d.ph = phIdle
-	d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+	d.lastStill, d.qStill = t, q
 }
 
 // complete ends the swing and asks for its analysis.
@@ -292,7 +296,7 @@ func (d *detector) stepGyro(t float64, g r3.Vec) {
 func (d *detector) step(t float64, q quat.Number) {
 	if !d.have {
 		d.have, d.tPrev, d.qPrev = true, t, q
-		d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+		d.lastStill, d.qStill, d.qOnset = t, q, q
 		return
 	}
 	dt := t - d.tPrev
@@ -300,7 +304,6 @@ func (d *detector) step(t float64, q quat.Number) {
 		// A gap: the difference across it is no angular velocity. Restart
 		// the filters; a backswing candidate does not survive it.
 		d.lpW.reset()
-		d.lpR.reset()
 		d.tPrev, d.qPrev = t, q
 		if d.ph == phBack {
 			d.abandon(t, q)
@@ -318,20 +321,27 @@ func (d *detector) step(t float64, q quat.Number) {
 	tPrev, vPrev := d.tPrev, d.vPrev
 	d.tPrev, d.qPrev, d.vPrev = t, q, v
 
+	if v <= d.onset {
+		d.aboveOnset, d.qOnset = false, q
+	} else if !d.aboveOnset {
+		d.aboveOnset = true
+		d.upTake = tPrev + dt*crossingAt(vPrev, v, d.onset) - d.tau
+		d.upAddr = tPrev - d.tau
+		d.qUp = d.qOnset
+	}
+
+	phiPrev, ratePrev := d.phi, d.rate
 	if d.ph == phIdle {
 		if v <= d.still {
-			d.lastStill, d.qStill, d.lastStillSeen = t, q, true
+			d.lastStill, d.qStill = t, q
 			return
 		}
-		d.begin(t, v)
+		d.begin(t, v, p)
+		phiPrev = d.phi
+	} else {
+		d.angle(p)
 	}
-	phiPrev, ratePrev := d.phi, d.rate
-	d.angle(p)
-	r := [3]float64{(d.phi - phiPrev) / dt}
-	if d.filtered {
-		d.lpR.step(&r, 1)
-	}
-	d.rate = r[0]
+	d.rate = d.angleRate(p, r3.Vec{X: x[0], Y: x[1], Z: x[2]}, v)
 	d.phiMin = math.Min(d.phiMin, d.phi)
 	d.peak = math.Max(d.peak, v)
 	if v > d.still {
@@ -394,17 +404,26 @@ func (d *detector) followTimeout(t float64, q quat.Number) {
 	d.abandon(t, q)
 }
 
-// begin starts a candidate at the first moving sample.
-func (d *detector) begin(t, v float64) {
+// begin starts a candidate at the first moving sample (speed v, pointer
+// p): the address direction is the pointer's just before the speed rose
+// through the onset level, and that rise starts the first backward run.
+func (d *detector) begin(t, v float64, p r3.Vec) {
 	d.ph = phBack
 	d.start, d.lastMoving = t, t
-	d.p0 = rot.Rotate(d.qStill, d.axis)
+	q0 := d.qStill
+	d.inRun = d.aboveOnset
+	if d.aboveOnset {
+		q0 = d.qUp
+		d.runTake, d.runAddr = d.upTake, d.upAddr
+	}
+	d.p0 = rot.Rotate(q0, d.axis)
 	d.planeOK = false
 	d.phi, d.rate, d.phiMin, d.peak = 0, 0, 0, v
-	d.inRun, d.topTent = false, false
+	d.angle(p)
+	d.phiMin = math.Min(0, d.phi)
+	d.topTent = false
 	d.impactKnown, d.impactSent = false, false
 	d.armUpSent, d.armDown = false, false
-	d.lpR.reset()
 }
 
 // angle updates φ for pointer p.
@@ -428,6 +447,27 @@ func (d *detector) angle(p r3.Vec) {
 	}
 	a := math.Atan2(r3.Dot(p, d.e2), r3.Dot(p, d.e1))
 	d.phi += wrapAngle(a - wrapAngle(d.phi))
+}
+
+// angleRate returns dφ/dt for pointer p turning with angular velocity w
+// (rad/s) at speed v: with ṗ = w × p and φ = atan2(p·e2, p·e1),
+//
+//	dφ/dt = ((ṗ·e2)(p·e1) − (ṗ·e1)(p·e2)) / ((p·e1)² + (p·e2)²),
+//
+// 0 where p is within 0.1° of the plane's normal. Before the plane is
+// fixed the movement counts as backward (−v), since the plane is then
+// chosen so that it is.
+func (d *detector) angleRate(p, w r3.Vec, v float64) float64 {
+	if !d.planeOK {
+		return -v
+	}
+	a, b := r3.Dot(p, d.e1), r3.Dot(p, d.e2)
+	den := a*a + b*b
+	if den < 3e-6 {
+		return 0
+	}
+	pd := r3.Cross(w, p)
+	return (r3.Dot(pd, d.e2)*a - r3.Dot(pd, d.e1)*b) / den
 }
 
 // backswing runs the backswing phase for the sample at t.
@@ -458,8 +498,8 @@ func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q quat.Number
 			d.ph = phDown
 			d.emit(kinchainv1.EventKind_EVENT_KIND_ADDRESS, d.address, t)
 			d.emit(kinchainv1.EventKind_EVENT_KIND_TAKEAWAY, d.takeaway, t)
-			d.emit(kinchainv1.EventKind_EVENT_KIND_TOP, d.topT, t)
 			d.armCheck(t)
+			d.emit(kinchainv1.EventKind_EVENT_KIND_TOP, d.topT, t)
 			return
 		}
 	}

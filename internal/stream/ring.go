@@ -9,6 +9,8 @@ import "sort"
 type ring struct {
 	cols  [nArrays][]float64 // nil for arrays the segment does not send
 	set   columnSet
+	have  [nArrays]uint8 // the indices of the non-nil columns
+	nhave int
 	limit int   // capacity in samples
 	start int   // physical index of the oldest sample
 	n     int   // samples held
@@ -26,6 +28,8 @@ func newRing(set columnSet, limit int) *ring {
 	for k := 0; k < nArrays; k++ {
 		if r.set.has(k) {
 			r.cols[k] = make([]float64, alloc)
+			r.have[r.nhave] = uint8(k)
+			r.nhave++
 		}
 	}
 	return r
@@ -70,10 +74,8 @@ func (r *ring) push(a *[nArrays][]float64, j int) {
 			r.start = 0
 		}
 	}
-	for k := range r.cols {
-		if c := r.cols[k]; c != nil {
-			c[p] = a[k][j]
-		}
+	for _, k := range r.have[:r.nhave] {
+		r.cols[k][p] = a[k][j]
 	}
 	r.total++
 }

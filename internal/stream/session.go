@@ -33,6 +33,7 @@ const (
 // segState is one declared segment of a stream.
 type segState struct {
 	seg   kinchainv1.Segment
+	name  string // segmentName(seg), for messages
 	mount *quat.Number // from the header, or from the neutral window
 	ring  *ring        // nil until the segment's first samples
 	stats trackStats
@@ -107,6 +108,10 @@ type Session struct {
 
 	idx    []int
 	closed bool
+
+	// skipAnalysis, set by benchmarks, drops finished swings instead of
+	// analysing them, to time the per-frame work alone.
+	skipAnalysis bool
 }
 
 // neutralWindow is the neutral-pose window, s.
@@ -150,7 +155,7 @@ func NewSession(h *kinchainv1.StreamHeader, lim Limits) (*Session, error) {
 	// The window analyses get explicit mountings instead (see calibrate).
 	s.opts.Neutral = nil
 	for i, seg := range h.GetSegments() {
-		st := &segState{seg: seg, armAxis: pointer}
+		st := &segState{seg: seg, name: segmentName(seg), armAxis: pointer}
 		if mounts != nil {
 			st.mount = mounts[i]
 			st.armAxis = rot.Rotate(rot.Conj(*mounts[i]), pointer)
@@ -377,6 +382,10 @@ func (s *Session) flush(all bool, out []*kinchainv1.StreamCaptureResponse) []*ki
 		p := &s.pend[0]
 		if !all && len(s.pend) <= maxPending && !s.ready(p) {
 			break
+		}
+		if s.skipAnalysis {
+			s.pend = s.pend[1:]
+			continue
 		}
 		if r := s.analyse(p); r != nil {
 			out = append(out, &kinchainv1.StreamCaptureResponse{Message: &kinchainv1.StreamCaptureResponse_Swing{Swing: r}})

@@ -76,8 +76,8 @@ type analysis struct {
 // fail the swing criteria (waggles, half swings) are reported as
 // WARNING_CODE_SWING_REJECTED warnings; a capture without the pelvis or
 // thorax, or without any of lead upper arm, lead hand and club, gets one
-// WARNING_CODE_SEGMENTS_MISSING warning and no swings. NOTES-swing.md (to
-// be merged into DEVELOPERS.md) defines every event and threshold.
+// WARNING_CODE_SEGMENTS_MISSING warning and no swings. The package comment
+// and DEVELOPERS.md define every event and threshold.
 func Analyze(k *kinematics.Result, opt Options) ([]*kinchainv1.SwingReport, []*kinchainv1.Warning) {
 	a := &analysis{k: k, opt: opt, left: opt.Handedness == kinchainv1.Handedness_HANDEDNESS_LEFT,
 		bySeg: map[kinchainv1.Segment]*seg{}}
@@ -106,9 +106,29 @@ func Analyze(k *kinematics.Result, opt Options) ([]*kinchainv1.SwingReport, []*k
 	for _, s := range a.segs {
 		a.levels(s)
 	}
-	a.limits = limitsFor(a.driver.id)
-	for _, ep := range a.episodes() {
-		a.episode(ep[0], ep[1], 0)
+	// The most distal present driver decides; when it yields no swing
+	// (a hand whose frame follows the forearm's twist more than the hand,
+	// say), the next one is tried, and the first driver's rejections stand
+	// when none yields a swing.
+	var firstWarnings []*kinchainv1.Warning
+	first := true
+	for _, d := range driverOrder {
+		s := a.bySeg[d]
+		if s == nil {
+			continue
+		}
+		a.driver, a.limits = s, limitsFor(d)
+		a.swings, a.warnings = nil, nil
+		for _, ep := range a.episodes() {
+			a.episode(ep[0], ep[1], 0)
+		}
+		if len(a.swings) > 0 {
+			break
+		}
+		if first {
+			firstWarnings, first = a.warnings, false
+		}
+		a.warnings = firstWarnings
 	}
 	sort.Slice(a.swings, func(i, j int) bool { return a.swings[i].top < a.swings[j].top })
 	reports := make([]*kinchainv1.SwingReport, 0, len(a.swings))

@@ -12,7 +12,7 @@ import (
 	"github.com/kinchain/kinchain/internal/rot"
 )
 
-// Detection thresholds. NOTES-swing.md gives the reasoning; all are our
+// Detection thresholds. DEVELOPERS.md gives the reasoning; all are our
 // choices, tuned on the synthetic model golfer and on slow practice swings
 // without a club.
 const (
@@ -47,8 +47,10 @@ const (
 	// takeaway, s.
 	AddressLookback = 2.0
 	// DownswingAfterImpact is how far past impact the downswing window of
-	// the sequence reaches, s.
-	DownswingAfterImpact = 0.040
+	// the sequence reaches, s: without a club, impact comes from a limb
+	// returning to its address angle, which in slow swings happens tens of
+	// ms before the hand peaks.
+	DownswingAfterImpact = 0.100
 	// ShockWindow, ShockFactor, ShockFloor: the accelerometer refines
 	// impact when, within ±ShockWindow s of the angle-based impact, the
 	// largest sample-to-sample change of the driver's specific force is at
@@ -195,7 +197,7 @@ func (a *analysis) episode(lo, hi, depth int) {
 	if pk < 0 || d.mag[pk] < math.Max(CandidateSpeed, CandidateFactor*d.still) {
 		return
 	}
-	// A swing attempt turns one way, then faster the other way: look for
+	// A swing attempt turns one way, then the other way faster: look for
 	// motion against the sense of the fastest moment before it (no frame
 	// needed). A one-way movement (returning from the finish, picking up
 	// the club) is not a candidate.
@@ -208,13 +210,24 @@ func (a *analysis) episode(lo, hi, depth int) {
 		}
 	}
 	if !back {
-		return
+		// The fastest moment may lie in the backswing (a waggle goes out
+		// and back equally fast): take the fastest opposite moment after it.
+		pk2 := -1
+		for i := pk + 1; i <= hi; i++ {
+			if d.valid(i) && r3.Dot(d.ks.Omega[i], npk) <= -d.still && (pk2 < 0 || d.mag[i] > d.mag[pk2]) {
+				pk2 = i
+			}
+		}
+		if pk2 < 0 {
+			return
+		}
+		pk = pk2
 	}
 	// Pass 1: a provisional address just before the movement.
 	from := max(0, lo-int(math.Round(0.3/a.dt)))
 	sw, why := a.detect(from, hi, pk)
 	if sw == nil {
-		a.reject(d.ks.Segment, a.time(pk), why)
+		a.reject(d.ks.Segment, a.time(pk), why+a.gapNote(from, hi))
 		return
 	}
 	// Pass 2: the frame and plane at the address found.
@@ -235,7 +248,7 @@ func (a *analysis) episode(lo, hi, depth int) {
 		if sw2 != nil {
 			t = sw2.top
 		}
-		a.reject(d.ks.Segment, t, why)
+		a.reject(d.ks.Segment, t, why+a.gapNote(sw.addrIdx, end))
 	}
 	a.episode(lo, sw.addrIdx-1, depth+1)
 	a.episode(end+1, hi, depth+1)
@@ -249,6 +262,23 @@ func (a *analysis) reject(s kinchainv1.Segment, t float64, why string) {
 		TimeS:   &t,
 		Message: fmt.Sprintf("movement at %.3f s not analysed as a swing: %s", t, why),
 	})
+}
+
+// gapNote returns a note on the first run of invalid driver samples in
+// [lo, hi], or "".
+func (a *analysis) gapNote(lo, hi int) string {
+	d := a.driver
+	for i := max(0, lo); i <= min(hi, a.n-1); i++ {
+		if d.valid(i) {
+			continue
+		}
+		j := i
+		for j+1 <= hi && !d.valid(j+1) {
+			j++
+		}
+		return fmt.Sprintf(" (the %s's data has a gap at %.3f–%.3f s)", segName(d.id), a.time(i), a.time(j))
+	}
+	return ""
 }
 
 // driverSeries returns, for the driver over [from, hi] in frame f with its
@@ -296,19 +326,13 @@ func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
 		return nil, fmt.Sprintf("its fastest movement (%.0f °/s at %.3f s) turns the %s away from the target; is the handedness right?",
 			deg(d.mag[pk]), a.time(pk), segName(d.id))
 	}
-	// Top: the last sign change of the rate from backward to forward
-	// before the fastest moment.
-	j := -1
-	for i := pk - 1; i >= from; i-- {
-		if d.valid(i) && d.valid(i+1) && r(i) <= 0 && r(i+1) > 0 {
-			j = i
-			break
-		}
-	}
-	if j < 0 {
+	// Top: the reversal at the backswing's extreme, the smallest angle
+	// before the fastest moment (robust to wobbles of the rate), refined to
+	// the rate's sign change next to it.
+	j, top, found := reversal(phi, rate, from, pk, d.valid, a)
+	if !found {
 		return nil, fmt.Sprintf("no reversal from backswing to downswing before %.3f s", a.time(pk))
 	}
-	top := a.time(j) + a.dt*crossing(r(j), r(j+1), 0)
 	// Takeaway: back from the top through the backswing to where the
 	// driver's speed falls to its onset level (or it stops moving back).
 	i1 := -1
@@ -342,7 +366,10 @@ func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
 	sw := &swingResult{f: f, addrIdx: ad, topIdx: j, peakIdx: pk, finishIdx: -1,
 		address: a.time(ad), takeaway: take, top: top,
 		transitions: map[kinchainv1.Segment]float64{}, transIdx: map[kinchainv1.Segment]int{}}
-	sw.amplitude = -(ph(j) + (ph(j+1)-ph(j))*crossing(r(j), r(j+1), 0))
+	sw.amplitude = -ph(j)
+	if j+1 <= hi {
+		sw.amplitude = -(ph(j) + (ph(j+1)-ph(j))*(top-a.time(j))/a.dt)
+	}
 
 	var why []string
 	if sw.amplitude < a.limits.amplitude {
@@ -373,6 +400,32 @@ func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
 		sw.finish = a.time(sw.finishIdx)
 	}
 	return sw, strings.Join(why, "; ")
+}
+
+// reversal returns the reversal from backward to forward of an in-plane
+// angle series phi (rate its rate; both indexed from base) over
+// [base, end): the sample j of the smallest valid angle, which must lie
+// inside the span with valid neighbours, and the time of the rate's sign change from ≤ 0 to > 0 in [j−1, j+1] by linear
+// interpolation (t(j) when the rate does not change sign there).
+func reversal(phi, rate []float64, base, end int, valid func(int) bool, a *analysis) (j int, t float64, ok bool) {
+	j = -1
+	for i := base; i < end; i++ {
+		if valid(i) && (j < 0 || phi[i-base] < phi[j-base]) {
+			j = i
+		}
+	}
+	if j <= base || j >= end-1 || !valid(j-1) || !valid(j+1) {
+		// At an end of the span, or next to a gap: the extreme is not a
+		// reversal that the samples show.
+		return j, 0, false
+	}
+	r := func(i int) float64 { return rate[i-base] }
+	for _, i := range []int{j, j - 1} {
+		if i >= base && i+1 < end && valid(i) && valid(i+1) && r(i) <= 0 && r(i+1) > 0 {
+			return i, a.time(i) + a.dt*crossing(r(i), r(i+1), 0), true
+		}
+	}
+	return j, a.time(j), true
 }
 
 // crossing returns the fraction u in [0, 1] at which the line from y0 to y1
@@ -526,11 +579,11 @@ func (a *analysis) complete(sw *swingResult) {
 	sort.SliceStable(sw.events, func(i, j int) bool { return sw.events[i].t < sw.events[j].t })
 }
 
-// transition returns segment s's own reversal: the last sign change from
-// backward to forward of the rate of its pointer's angle in its swing plane
-// (see planeFor), before its fastest moment in [top, end]. The reversal
-// counts only when the segment moved backward before it and forward after
-// it faster than its still level.
+// transition returns segment s's own reversal: the reversal (see
+// reversal) of its pointer's angle in its swing plane (see planeFor) before
+// its fastest moment in [top, end]. The reversal counts only when the
+// segment moved backward before it and forward after it faster than its
+// still level.
 func (a *analysis) transition(s *seg, f *frame, addr, top, end int) (t float64, j int, ok bool) {
 	ax := pointerAxis(s.id)
 	pl, ok := planeFor(s.id, rot.Rotate(f.orientation(s.ks.Q[addr]), ax))
@@ -546,32 +599,37 @@ func (a *analysis) transition(s *seg, f *frame, addr, top, end int) (t float64, 
 	if pk <= addr {
 		return 0, 0, false
 	}
+	phi := make([]float64, pk-addr+1)
 	rate := make([]float64, pk-addr+1)
+	prev := 0.0
 	for i := addr; i <= pk; i++ {
-		rate[i-addr] = pl.rate(rot.Rotate(f.orientation(s.ks.Q[i]), ax), f.omega(s.ks.Omega[i]))
+		p := rot.Rotate(f.orientation(s.ks.Q[i]), ax)
+		ang := pl.angle(p)
+		if i > addr {
+			ang = prev + wrapPi(ang-wrapPi(prev))
+		}
+		phi[i-addr], prev = ang, ang
+		rate[i-addr] = pl.rate(p, f.omega(s.ks.Omega[i]))
 	}
-	r := func(i int) float64 { return rate[i-addr] }
-	for j = pk - 1; j >= addr; j-- {
-		if !(s.valid(j) && s.valid(j+1) && r(j) <= 0 && r(j+1) > 0) {
-			continue
-		}
-		back, fwd := false, false
-		for i := addr; i <= j; i++ {
-			if s.valid(i) && r(i) <= -s.still {
-				back = true
-				break
-			}
-		}
-		for i := j + 1; i <= pk; i++ {
-			if s.valid(i) && r(i) >= s.still {
-				fwd = true
-				break
-			}
-		}
-		if !back || !fwd {
-			return 0, 0, false
-		}
-		return a.time(j) + a.dt*crossing(r(j), r(j+1), 0), j, true
+	j, t, ok = reversal(phi, rate, addr, pk, s.valid, a)
+	if !ok {
+		return 0, 0, false
 	}
-	return 0, 0, false
+	back, fwd := false, false
+	for i := addr; i <= j; i++ {
+		if s.valid(i) && rate[i-addr] <= -s.still {
+			back = true
+			break
+		}
+	}
+	for i := j + 1; i <= pk; i++ {
+		if s.valid(i) && rate[i-addr] >= s.still {
+			fwd = true
+			break
+		}
+	}
+	if !back || !fwd {
+		return 0, 0, false
+	}
+	return t, j, true
 }

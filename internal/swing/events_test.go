@@ -2,12 +2,14 @@ package swing
 
 import (
 	"math"
+	"math/rand/v2"
 	"strings"
 	"testing"
 
 	"gonum.org/v1/gonum/spatial/r3"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/rot"
 	"github.com/kinchain/kinchain/internal/synth"
 )
 
@@ -221,5 +223,76 @@ func TestWrongHandedness(t *testing.T) {
 	_, reps, warns := pipeline(t, c, noFilter())
 	if len(reps) != 0 || len(warns) != 1 || !strings.Contains(warns[0].Message, "handedness") {
 		t.Fatalf("%d swings, warnings %v", len(reps), warns)
+	}
+}
+
+// A gap across the top in the club's data: the next driver, the lead hand,
+// takes over. Gaps in every driver's data: the candidate is rejected and
+// the message names the gap.
+func TestGapAtTop(t *testing.T) {
+	c, tr := generate(t, synth.Config{})
+	kin, _, _ := pipeline(t, c, noFilter())
+	st := tr.Swings[0]
+	cutTop := func(s kinchainv1.Segment) {
+		ks := kin.Segment(s)
+		ks.Valid = make([]bool, kin.Grid.N)
+		for i := range ks.Valid {
+			tt := kin.Grid.Time(i)
+			ks.Valid[i] = !(tt > st.Top-0.03 && tt < st.Top+0.03)
+		}
+	}
+	cutTop(clubSeg)
+	reps, warns := Analyze(kin, Options{})
+	if len(reps) != 1 || len(warns) != 0 {
+		t.Fatalf("club gap: %d swings, warnings %v", len(reps), warns)
+	}
+	top, _ := eventTime(reps[0], evTop)
+	closeTo(t, "top from the lead hand", top, st.Transitions[leadHand], sample1k)
+	for _, s := range []kinchainv1.Segment{leadHand, leadFore, leadArm} {
+		cutTop(s)
+	}
+	reps, warns = Analyze(kin, Options{})
+	if len(reps) != 0 || len(warns) != 1 || !strings.Contains(warns[0].Message, "gap at") {
+		t.Fatalf("gaps in every driver: %d swings, warnings %v", len(reps), warns)
+	}
+}
+
+// Random motion of every segment gives no panic and at most rejected
+// candidates; a capture at rest gives nothing.
+func TestRandomAndStillInput(t *testing.T) {
+	c, _ := generate(t, synth.Config{})
+	kin, _, _ := pipeline(t, c, noFilter())
+	r := rand.New(rand.NewPCG(5, 6))
+	for k := range kin.Segments {
+		s := &kin.Segments[k]
+		w := r3.Vec{}
+		for i := range s.Omega {
+			w = r3.Add(r3.Scale(0.99, w), r3.Vec{X: r.NormFloat64(), Y: r.NormFloat64(), Z: r.NormFloat64()})
+			s.Omega[i] = w
+			s.Speed[i] = r3.Norm(w)
+			s.Q[i] = rot.Mul(rot.FromRotVec(r3.Scale(kin.Grid.Dt(), w)), s.Q[max(0, i-1)])
+		}
+	}
+	reps, warns := Analyze(kin, Options{})
+	for _, w := range warns {
+		if w.Code != kinchainv1.WarningCode_WARNING_CODE_SWING_REJECTED && w.Code != kinchainv1.WarningCode_WARNING_CODE_GIMBAL_LOCK {
+			t.Fatalf("unexpected warning %v", w)
+		}
+	}
+	for _, rep := range reps {
+		for i := 1; i < len(rep.Events); i++ {
+			if rep.Events[i].TimeS < rep.Events[i-1].TimeS {
+				t.Fatalf("events out of order: %v", rep.Events)
+			}
+		}
+	}
+	for k := range kin.Segments {
+		s := &kin.Segments[k]
+		for i := range s.Omega {
+			s.Omega[i], s.Speed[i], s.Q[i] = r3.Vec{}, 0, s.Q[0]
+		}
+	}
+	if reps, warns := Analyze(kin, Options{}); len(reps) != 0 || len(warns) != 0 {
+		t.Fatalf("still capture: %d swings, warnings %v", len(reps), warns)
 	}
 }

@@ -18,11 +18,11 @@ import (
 // when its segments are:
 //
 //   - pelvis, thorax: kinematics.BodyAnglesOf relative to the target-line
-//     frame (intrinsic Z-Y'-X”: axial rotation toward the target, flexion
+//     frame (intrinsic Z-Y′-X″: axial rotation toward the target, flexion
 //     forward, lateral bend toward the trail side positive);
 //   - separation: the thorax relative to the pelvis, the same sequence;
 //   - lead_arm: the lead upper arm relative to the thorax,
-//     kinematics.HumerothoracicAngles (ISB Y-X'-Y”, Wu et al. 2005) for the
+//     kinematics.HumerothoracicAngles (ISB Y-X′-Y″, Wu et al. 2005) for the
 //     left side, with near_gimbal_lock when the elevation is within 10° of 0°
 //     or 180°;
 //   - lead_wrist: the lead hand relative to the lead forearm,

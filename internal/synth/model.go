@@ -382,8 +382,9 @@ func (m *Model) sensorLocal(s kinchainv1.Segment, t float64) (p, acc r3.Vec) {
 }
 
 // rigid returns α × r + ω × (ω × r), the acceleration of a point at r from
-// a base point of the same rigid body (Winter, Biomechanics and Motor
-// Control of Human Movement, 4th ed., ch. 3, in vector form).
+// a base point of the same rigid body (relative acceleration on a rigid
+// body, e.g. Meriam & Kraige, Engineering Mechanics: Dynamics, ch. 5; from
+// memory).
 func rigid(w, a, r r3.Vec) r3.Vec {
 	return r3.Add(r3.Cross(a, r), r3.Cross(w, r3.Cross(w, r)))
 }

@@ -34,7 +34,8 @@ func sampleTimes(m *Model) []float64 {
 // The analytic angular velocity matches the central difference of the
 // model's own orientation: ω ≈ 2·log(q(t+h) ⊗ q(t−h)*)/(2h), the rotation
 // vector of the world-frame increment over 2h (central difference, Winter,
-// Biomechanics and Motor Control of Human Movement, 4th ed., §2.2; the
+// Biomechanics and Motor Control of Human Movement, finite differences in
+// the kinematics chapter, from memory; the
 // rotation-vector form of the increment is the definition of ω for a
 // rotation). Truncation error O(h²·|d³θ/dt³|), rounding O(ε/h).
 func TestOmegaMatchesOrientationDifference(t *testing.T) {
@@ -73,7 +74,7 @@ func TestAngularAccelerationMatchesOmegaDifference(t *testing.T) {
 }
 
 // The sensor acceleration matches the second central difference of the
-// sensor position (Winter, §2.2), away from the impact shock, which is a
+// sensor position (Winter, as above), away from the impact shock, which is a
 // force on the club and not part of the limb motion.
 func TestSensorAccelerationMatchesPositionDifference(t *testing.T) {
 	const h = 1e-4

@@ -27,7 +27,7 @@ var AllSegments = []kinchainv1.Segment{pelvis, thorax, head, leadArm, leadFore, 
 // with the default 0.25 s downswing. Times are offsets in s: start from the
 // takeaway, trans from the top, peak from impact. Angles in degrees, speeds
 // in °/s. All numbers are our own invention, chosen to look like a skilled
-// player (see NOTES-synth.md); none is a measurement.
+// player (see the package comment); none is a measurement.
 type spec struct {
 	body bool // pelvis, thorax, head: Cardan angles; else a swing-plane drive
 

@@ -13,9 +13,9 @@ import (
 
 // PeakWindowAfterImpact is how far past impact the downswing window of the
 // peak search reaches, s: the window the swing package uses (a segment's
-// window runs from the earlier of the top and its own transition to 40 ms
+// window runs from the earlier of the top and its own transition to 100 ms
 // after impact).
-const PeakWindowAfterImpact = 0.040
+const PeakWindowAfterImpact = 0.100
 
 // truthStep is the grid step of the fine searches over the closed form, s.
 const truthStep = 20e-6
