@@ -26,7 +26,7 @@ import (
 // tests check what can be checked without one: the Dockerfile's content, and
 // the binary its own build command produces.
 
-func readRepoDockerfile(t *testing.T) *dockerfile {
+func readRepoDockerfile(t testing.TB) *dockerfile {
 	t.Helper()
 	d, err := parseDockerfile(filepath.Join(repoRoot(t), "deploy", "Dockerfile"))
 	if err != nil {
@@ -36,7 +36,7 @@ func readRepoDockerfile(t *testing.T) *dockerfile {
 }
 
 // imageUser returns the final stage's numeric USER uid:gid.
-func imageUser(t *testing.T, d *dockerfile) (uid, gid int64) {
+func imageUser(t testing.TB, d *dockerfile) (uid, gid int64) {
 	t.Helper()
 	users := d.final().all("USER")
 	if len(users) != 1 {

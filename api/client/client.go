@@ -10,7 +10,9 @@
 //   - a default per-call deadline for calls that have none;
 //   - transparent retries of AnalyzeCapture on UNAVAILABLE (a replica
 //     shutting down), which is safe because analysis is stateless;
-//   - 64 MiB message limits, matching the server's defaults.
+//   - 64 MiB message limits, matching the server's defaults, and HTTP/2
+//     flow-control windows of 4 MiB per stream / 16 MiB per connection so
+//     a capture crosses in few round trips.
 //
 // Analyze is the typed helper for the common call:
 //
@@ -108,6 +110,12 @@ func DialOptions(o Options) []grpc.DialOption {
 	opts := []grpc.DialOption{
 		grpc.WithTransportCredentials(creds),
 		grpc.WithDefaultServiceConfig(ServiceConfig),
+		// Captures are large: fixed flow-control windows and larger socket
+		// buffers (the server uses the same values).
+		grpc.WithInitialWindowSize(4 << 20),
+		grpc.WithInitialConnWindowSize(16 << 20),
+		grpc.WithReadBufferSize(256 << 10),
+		grpc.WithWriteBufferSize(256 << 10),
 		grpc.WithKeepaliveParams(keepalive.ClientParameters{
 			Time:                o.KeepaliveTime,
 			Timeout:             o.KeepaliveTimeout,

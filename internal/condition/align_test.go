@@ -86,6 +86,9 @@ func TestContinuity(t *testing.T) {
 			want++
 		}
 	}
+	if got := continuityFlips(q); got != want {
+		t.Errorf("continuityFlips %d, want %d", got, want)
+	}
 	if got := Continuity(q); got != want {
 		t.Errorf("flips %d, want %d", got, want)
 	}
@@ -236,6 +239,18 @@ func TestExplicitMountingAndStillness(t *testing.T) {
 	}
 	if hasWarning(res.Warnings, kinchainv1.WarningCode_WARNING_CODE_NEUTRAL_NOT_STILL, pelvis) != nil {
 		t.Errorf("NEUTRAL_NOT_STILL for the still pelvis")
+	}
+	// Options.Neutral overrides the capture's window: a window where the
+	// thorax is still (after its turn) gives no warning.
+	res, err = Run(c, Options{Neutral: &capture.Window{Start: 1.6, End: 2.5}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if w := hasWarningCode(res.Warnings, kinchainv1.WarningCode_WARNING_CODE_NEUTRAL_NOT_STILL); w != nil {
+		t.Errorf("options window: %v", w)
+	}
+	if d := angleDeg(res.Segment(thorax).Q[299], rot.YawRotation(psi0)); d > 1e-9 {
+		t.Errorf("options window: thorax at the end %g° from the pelvis heading", d)
 	}
 	// Without a neutral window and without mountings: sensor frame = segment frame.
 	c.Neutral, c.Tracks[0].Mounting = nil, nil

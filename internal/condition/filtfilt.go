@@ -63,13 +63,20 @@ type Filter struct {
 // NewFilter returns a Filter for sos. Sections are normalised so that
 // a0 = 1. An empty sos filters nothing (the output equals the input).
 func NewFilter(sos SOS) *Filter {
+	f := &Filter{}
+	f.reset(sos)
+	return f
+}
+
+// reset makes f filter with sos, keeping its work buffers.
+func (f *Filter) reset(sos SOS) {
 	n := make(SOS, len(sos))
 	for i, s := range sos {
 		for j := range s {
 			n[i][j] = s[j] / s[3]
 		}
 	}
-	return &Filter{sos: n, zi: InitialState(n), pad: Padlen(n)}
+	f.sos, f.zi, f.pad = n, InitialState(n), Padlen(n)
 }
 
 // SOS returns the filter's sections.

@@ -45,7 +45,8 @@ func TestMedian(t *testing.T) {
 // stat.StdDev: effective rate = 1/median interval, jitter = standard
 // deviation of the intervals (ms), the TIMING_JITTER rule (> 10 % of the
 // median), renormalised count and fused flag passed through, and
-// hemisphere flips = the number of sign changes put into the input.
+// hemisphere flips = the number of sign changes put into the input, which
+// the output no longer has (and the input still has: Run leaves it alone).
 func TestQualityFigures(t *testing.T) {
 	r := rand.New(rand.NewPCG(33, 34))
 	s := spin{randUnit(r), r3.Vec{X: 4, Y: 1, Z: -2}}
@@ -64,6 +65,16 @@ func TestQualityFigures(t *testing.T) {
 		res, err := Run(&capture.Capture{Tracks: []capture.Track{tr}}, Options{})
 		if err != nil {
 			t.Fatal(err)
+		}
+		for i := range tr.Q {
+			if i%7 == 3 && rot.Dot(tr.Q[i], s.at(ts[i])) > 0 {
+				t.Fatalf("Run changed its input at sample %d", i)
+			}
+		}
+		for i, q := range res.Segments[0].Q {
+			if i > 0 && rot.Dot(res.Segments[0].Q[i-1], q) < 0 {
+				t.Fatalf("output discontinuous at %d", i)
+			}
 		}
 		q := res.Segments[0].Quality
 		iv := make([]float64, len(ts)-1)

@@ -15,13 +15,19 @@ import (
 //
 // in the units of x (Winter, Biomechanics and Motor Control of Human
 // Movement, 4th ed., 2009, §3.4.4.3). work is reused as the filter's output
-// buffer when large enough.
+// buffer when large enough, and returned.
 func Residual(x []float64, order int, cutoff, fs float64, work []float64) (float64, []float64, error) {
+	return residual(&Filter{}, x, order, cutoff, fs, work)
+}
+
+// residual is Residual with a reusable filter.
+func residual(f *Filter, x []float64, order int, cutoff, fs float64, work []float64) (float64, []float64, error) {
 	sos, err := Butterworth(order, cutoff, fs)
 	if err != nil {
 		return 0, work, err
 	}
-	work = NewFilter(sos).Apply(work, x)
+	f.reset(sos)
+	work = f.Apply(work, x)
 	s := 0.0
 	for i, v := range x {
 		d := v - work[i]
@@ -77,32 +83,33 @@ func ResidualCutoff(x []float64, fs float64, order int) (float64, error) {
 	fn := fs / 2
 	var work []float64
 	var err error
-	fc := make([]float64, residualFitPoints)
-	r := make([]float64, residualFitPoints)
-	for k := range fc {
-		fc[k] = fn * (residualFitLow + (residualFitHigh-residualFitLow)*float64(k)/float64(residualFitPoints-1))
-		if r[k], work, err = Residual(x, order, fc[k], fs, work); err != nil {
+	f := &Filter{}
+	fitF := make([]float64, residualFitPoints)
+	fitR := make([]float64, residualFitPoints)
+	for k := range fitF {
+		fitF[k] = fn * (residualFitLow + (residualFitHigh-residualFitLow)*float64(k)/float64(residualFitPoints-1))
+		if fitR[k], work, err = residual(f, x, order, fitF[k], fs, work); err != nil {
 			return 0, err
 		}
 	}
-	a, _ := stat.LinearRegression(fc, r, nil, false)
+	a, _ := stat.LinearRegression(fitF, fitR, nil, false)
 
 	h := math.Min(residualStep, fn/200)
 	limit := residualFitLow * fn
 	prevF, prevR := 0.0, 0.0
 	for j := 1; float64(j)*h < limit; j++ {
-		f := float64(j) * h
+		fc := float64(j) * h
 		var rf float64
-		if rf, work, err = Residual(x, order, f, fs, work); err != nil {
+		if rf, work, err = residual(f, x, order, fc, fs, work); err != nil {
 			return 0, err
 		}
 		if rf <= a {
 			if j == 1 {
-				return f, nil
+				return fc, nil
 			}
 			return prevF + (prevR-a)/(prevR-rf)*h, nil
 		}
-		prevF, prevR = f, rf
+		prevF, prevR = fc, rf
 	}
 	return limit, nil
 }

@@ -49,6 +49,7 @@ type InputError struct {
 	Detail string
 }
 
+// Error returns "field[sample]: detail", or "field: detail" without a sample.
 func (e *InputError) Error() string {
 	if e.Sample >= 0 {
 		return fmt.Sprintf("%s[%d]: %s", e.Field, e.Sample, e.Detail)
@@ -83,6 +84,14 @@ func inputErr(field string, sample int, format string, a ...any) error {
 // segment with an explicit mounting (pelvis, thorax, then track order), so
 // that explicit and calibrated segments agree; without one, that of the
 // pelvis sensor's x axis, else the thorax sensor's, else the first track's.
+// A static pose cannot reveal the player's facing in the sensors' world
+// frame, so without an explicit body-segment mounting the calibrated segment
+// frames differ from the anatomical ones by one rotation δ about each
+// segment's own z axis (δ = the reference sensor's x-axis heading minus the
+// facing; q_calibrated = q_true ⊗ Yaw(δ)). Speeds are unaffected (world
+// angular velocity and the segment z component do not change); posture and
+// joint angles are measured about segment x and y axes turned by δ, unless
+// the reference sensor's x axis points forward (δ = 0).
 //
 // Every track must carry quaternions: raw inertial tracks are fused before
 // Run. Errors are *InputError values.

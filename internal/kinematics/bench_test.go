@@ -15,10 +15,18 @@ import (
 )
 
 // benchCapture is a 3 s, six-segment, 1 kHz capture of closed-form swing
-// motions, each sensor mounted with a random rotation and carrying
-// gyroscope and accelerometer columns, with a neutral window in which the
-// segments are nearly still (no warnings).
-func benchCapture() *capture.Capture { return benchCaptureAt(1000) }
+// motions, each sensor mounted with a random rotation, with a neutral
+// window in which the segments are nearly still (no warnings). With
+// inertial, the tracks also carry gyroscope and accelerometer columns.
+func benchCapture(inertial bool) *capture.Capture {
+	c := benchCaptureAt(1000)
+	if !inertial {
+		for i := range c.Tracks {
+			c.Tracks[i].Gyro, c.Tracks[i].Accel = nil, nil
+		}
+	}
+	return c
+}
 
 func benchCaptureAt(rate float64) *capture.Capture {
 	r := rand.New(rand.NewPCG(101, 102))
@@ -67,9 +75,15 @@ func perSample(b *testing.B, samples int, op func()) {
 
 // BenchmarkPipeline measures condition.Run followed by Compute with the
 // default options (20 Hz, order-2 zero-phase filter) per orientation sample
-// of the input.
-func BenchmarkPipeline(b *testing.B) {
-	c := benchCapture()
+// of the input, for orientation-only tracks.
+func BenchmarkPipeline(b *testing.B) { benchPipeline(b, false) }
+
+// BenchmarkPipelineInertial is BenchmarkPipeline with gyroscope and
+// accelerometer columns on every track (resampled and rotated too).
+func BenchmarkPipelineInertial(b *testing.B) { benchPipeline(b, true) }
+
+func benchPipeline(b *testing.B, inertial bool) {
+	c := benchCapture(inertial)
 	perSample(b, c.Samples(), func() {
 		cond, err := condition.Run(c, condition.Options{})
 		if err != nil {
@@ -83,7 +97,7 @@ func BenchmarkPipeline(b *testing.B) {
 
 // BenchmarkCondition and BenchmarkCompute split the pipeline.
 func BenchmarkCondition(b *testing.B) {
-	c := benchCapture()
+	c := benchCapture(false)
 	perSample(b, c.Samples(), func() {
 		if _, err := condition.Run(c, condition.Options{}); err != nil {
 			b.Fatal(err)
@@ -92,7 +106,7 @@ func BenchmarkCondition(b *testing.B) {
 }
 
 func BenchmarkCompute(b *testing.B) {
-	c := benchCapture()
+	c := benchCapture(false)
 	cond, err := condition.Run(c, condition.Options{})
 	if err != nil {
 		b.Fatal(err)

@@ -57,6 +57,7 @@ type OptionError struct {
 	Detail string
 }
 
+// Error returns "field: detail".
 func (e *OptionError) Error() string { return e.Field + ": " + e.Detail }
 
 func (o Options) check() error {

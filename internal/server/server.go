@@ -35,6 +35,14 @@ const (
 	serverPingTimeout = 20 * time.Second
 )
 
+// HTTP/2 flow control and buffers for large messages; the same values are
+// in api/client.
+const (
+	streamWindow = 4 << 20
+	connWindow   = 16 << 20
+	socketBuffer = 256 << 10
+)
+
 // Server is kinchain's network service. Create it with New, run it with
 // Serve.
 type Server struct {
@@ -109,6 +117,13 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 	opts := []grpc.ServerOption{
 		grpc.MaxRecvMsgSize(cfg.MaxRecvMsgBytes),
 		grpc.MaxSendMsgSize(cfg.MaxSendMsgBytes),
+		// Captures are large messages: fixed flow-control windows (instead
+		// of BDP estimation starting at 64 KiB) and larger socket buffers
+		// cut window updates and syscalls per call (NOTES-server.md).
+		grpc.InitialWindowSize(streamWindow),
+		grpc.InitialConnWindowSize(connWindow),
+		grpc.ReadBufferSize(socketBuffer),
+		grpc.WriteBufferSize(socketBuffer),
 		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: keepaliveMinTime, PermitWithoutStream: true}),
 		grpc.KeepaliveParams(keepalive.ServerParameters{
 			Time:                  serverPingTime,

@@ -38,6 +38,14 @@ const (
 	// TopConfirmAngle is how far the driver must have turned back toward
 	// the target past its extreme before the top is reported, rad (1°).
 	TopConfirmAngle = 1 * math.Pi / 180
+	// LiveCutoffFraction: the live detector's low-pass cutoff is this
+	// fraction of the analysis cutoff (10 Hz for the default 20 Hz). A
+	// causal second-order filter passes far more of the differenced noise
+	// than the analysis's zero-phase (fourth-order) one at the same cutoff;
+	// at half the cutoff its still level stays near the analysis's in noisy
+	// data, at the price of 22 ms of group delay (tau), which the event
+	// times are corrected by.
+	LiveCutoffFraction = 0.5
 )
 
 // criteria are a driver's swing criteria: the backswing amplitude in its
@@ -126,8 +134,9 @@ func wrapAngle(x float64) float64 {
 // armCrossing is a moment the lead upper arm's long axis passed
 // horizontal.
 type armCrossing struct {
-	t  float64
-	up bool // going up (backswing), else coming down
+	t  float64 // the crossing, s
+	at float64 // the arm sample that revealed it, s
+	up bool    // going up (backswing), else coming down
 }
 
 // armHistory is the number of arm crossings remembered.
@@ -164,12 +173,12 @@ type detector struct {
 	vPrev float64
 
 	// Quiet level: the lowest mean speed over any QuietWindow so far.
-	qwin          []float64
-	qpos, qcnt    int
-	qsum, quiet   float64
-	still, onset  float64
-	lastStill float64
-	qStill    quat.Number
+	qwin         []float64
+	qpos, qcnt   int
+	qsum, quiet  float64
+	still, onset float64
+	lastStill    float64
+	qStill       quat.Number
 
 	// The current rise above the onset level: where it began (takeaway and
 	// address estimates) and the orientation just before it.
@@ -189,8 +198,15 @@ type detector struct {
 
 	inRun              bool
 	runTake, runAddr   float64
+	runQ               quat.Number // orientation at the run's address sample
+	haveCand           bool        // a fast backward sample was seen
+	takeCand, addrCand float64     // the run holding the last fast backward sample
+	candQ              quat.Number
+	pPlane             r3.Vec      // the pointer that fixed the plane
+	qBegin             quat.Number // orientation at the last still sample before the candidate
 	topTent            bool
 	topT               float64
+	topAt              float64 // when the top was decided
 	takeaway, address  float64
 	impact             float64
 	impactKnown        bool
@@ -318,7 +334,7 @@ func (d *detector) step(t float64, q quat.Number) {
 	v := math.Sqrt(x[0]*x[0] + x[1]*x[1] + x[2]*x[2])
 	d.quietUpdate(v)
 	p := rot.Rotate(q, d.axis)
-	tPrev, vPrev := d.tPrev, d.vPrev
+	tPrev, vPrev, qLast := d.tPrev, d.vPrev, d.qPrev
 	d.tPrev, d.qPrev, d.vPrev = t, q, v
 
 	if v <= d.onset {
@@ -350,7 +366,7 @@ func (d *detector) step(t float64, q quat.Number) {
 
 	switch d.ph {
 	case phBack:
-		d.backswing(t, tPrev, v, vPrev, ratePrev, q)
+		d.backswing(t, tPrev, v, vPrev, ratePrev, q, qLast)
 	case phDown:
 		if phiPrev < 0 && d.phi >= 0 {
 			d.impact = tPrev + dt*crossingAt(phiPrev, d.phi, 0)
@@ -411,10 +427,11 @@ func (d *detector) begin(t, v float64, p r3.Vec) {
 	d.ph = phBack
 	d.start, d.lastMoving = t, t
 	q0 := d.qStill
-	d.inRun = d.aboveOnset
+	d.qBegin = d.qStill
+	d.inRun, d.haveCand = d.aboveOnset, false
 	if d.aboveOnset {
 		q0 = d.qUp
-		d.runTake, d.runAddr = d.upTake, d.upAddr
+		d.runTake, d.runAddr, d.runQ = d.upTake, d.upAddr, d.qUp
 	}
 	d.p0 = rot.Rotate(q0, d.axis)
 	d.planeOK = false
@@ -441,6 +458,7 @@ func (d *detector) angle(p r3.Vec) {
 				d.e1 = d.p0
 				d.e2 = r3.Cross(n, d.p0)
 				d.planeOK = true
+				d.pPlane = p
 			}
 		}
 		return
@@ -470,25 +488,49 @@ func (d *detector) angleRate(p, w r3.Vec, v float64) float64 {
 	return (r3.Dot(pd, d.e2)*a - r3.Dot(pd, d.e1)*b) / den
 }
 
-// backswing runs the backswing phase for the sample at t.
-func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q quat.Number) {
-	// The takeaway is where the current run of backward movement faster
-	// than the onset level began (the swing package walks back from the
-	// top to the same place).
+// reanchor measures φ from the pointer at the takeaway's address sample
+// (orientation qa) from now on: the plane through it and the pointer that
+// fixed the first plane, the same construction as in angle. φ is carried
+// over continuously from its current value for pointer p.
+func (d *detector) reanchor(qa quat.Number, p r3.Vec) {
+	p0 := rot.Rotate(qa, d.axis)
+	n := r3.Cross(d.pPlane, p0)
+	nn := r3.Norm(n)
+	if nn < 1e-9 {
+		return
+	}
+	n = r3.Scale(1/nn, n)
+	d.p0, d.e1, d.e2 = p0, p0, r3.Cross(n, p0)
+	a := math.Atan2(r3.Dot(p, d.e2), r3.Dot(p, d.e1))
+	d.phi += wrapAngle(a - wrapAngle(d.phi))
+}
+
+// backswing runs the backswing phase for the sample at t (orientation q,
+// the previous sample's qLast).
+func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q, qLast quat.Number) {
+	// The takeaway is where the run of backward movement faster than the
+	// onset level that holds the last sample turning backward faster than
+	// the still level began: the swing package walks back from the top to
+	// the same place.
 	back := v > d.onset && d.rate < 0
 	if back && !d.inRun {
 		d.inRun = true
 		d.runAddr = tPrev - d.tau
 		d.runTake = tPrev + (t-tPrev)*crossingAt(vPrev, v, d.onset) - d.tau
+		d.runQ = qLast
 	} else if !back {
 		d.inRun = false
 	}
+	if d.inRun && d.rate <= -d.still {
+		d.haveCand = true
+		d.takeCand, d.addrCand, d.candQ = d.runTake, d.runAddr, d.runQ
+	}
 	switch {
-	case ratePrev <= 0 && d.rate > 0:
+	case ratePrev <= 0 && d.rate > 0 && d.haveCand:
 		// A reversal from backward to forward: a tentative top.
 		d.topTent = true
 		d.topT = tPrev + (t-tPrev)*crossingAt(ratePrev, d.rate, 0) - d.tau
-		d.takeaway, d.address = d.runTake, d.runAddr
+		d.takeaway, d.address = d.takeCand, d.addrCand
 	case d.topTent && d.rate <= 0:
 		d.topTent = false
 	}
@@ -496,6 +538,16 @@ func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q quat.Number
 		d.topTent = false
 		if -d.phiMin >= d.crit.amplitude {
 			d.ph = phDown
+			d.topAt = t
+			// The address direction: at the takeaway's address sample when
+			// that run began before the candidate (clean data), else at the
+			// last still sample before it (in noise the run can break and
+			// start late, after the pointer has moved).
+			qa := d.qBegin
+			if d.takeCand <= d.start {
+				qa = d.candQ
+			}
+			d.reanchor(qa, rot.Rotate(q, d.axis))
 			d.emit(kinchainv1.EventKind_EVENT_KIND_ADDRESS, d.address, t)
 			d.emit(kinchainv1.EventKind_EVENT_KIND_TAKEAWAY, d.takeaway, t)
 			d.armCheck(t)
@@ -535,19 +587,22 @@ func (d *detector) quietUpdate(v float64) {
 	}
 }
 
-// addArm records a lead-arm crossing and emits what it completes; at is
-// the arm sample's time.
-func (d *detector) addArm(c armCrossing, at float64) {
+// addArm records a lead-arm crossing and emits what it completes.
+func (d *detector) addArm(c armCrossing) {
 	d.arm[d.narm%armHistory] = c
 	d.narm++
-	d.armCheck(at)
+	if d.have {
+		d.armCheck(d.tPrev)
+	}
 }
 
-// armCheck emits the lead-arm events the crossings so far complete: the
-// first upward crossing between the candidate's start and its top (once
-// the top is decided), and the first downward crossing after the top and
-// not after impact.
-func (d *detector) armCheck(at float64) {
+// armCheck emits the lead-arm events that the crossings revealed by arm
+// samples up to stream time now complete: the first upward crossing
+// between the candidate's start and its top (once the top is decided), and
+// the first downward crossing after the top and not after impact. An
+// event's detection time is the later of the arm sample that revealed it
+// and the top's decision, whichever segment's samples arrive first.
+func (d *detector) armCheck(now float64) {
 	if d.ph < phDown || d.narm == 0 {
 		return
 	}
@@ -555,9 +610,9 @@ func (d *detector) armCheck(at float64) {
 	if !d.armUpSent {
 		for i := first; i < d.narm; i++ {
 			c := d.arm[i%armHistory]
-			if c.up && c.t >= d.start-d.tau && c.t <= d.topT {
+			if c.up && c.at <= now && c.t >= d.start-d.tau && c.t <= d.topT {
 				d.armUpSent = true
-				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_BACKSWING, c.t, at)
+				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_BACKSWING, c.t, math.Max(c.at, d.topAt))
 				break
 			}
 		}
@@ -565,9 +620,9 @@ func (d *detector) armCheck(at float64) {
 	if !d.armDown {
 		for i := first; i < d.narm; i++ {
 			c := d.arm[i%armHistory]
-			if !c.up && c.t > d.topT && (!d.impactKnown || c.t <= d.impact) {
+			if !c.up && c.at <= now && c.t > d.topT && (!d.impactKnown || c.t <= d.impact) {
 				d.armDown = true
-				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_DOWNSWING, c.t, at)
+				d.emit(kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_DOWNSWING, c.t, math.Max(c.at, d.topAt))
 				break
 			}
 		}

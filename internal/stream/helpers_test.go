@@ -114,7 +114,10 @@ func compareMessages(path string, a, b protoreflect.Message, tol tolerance, out 
 	for i := 0; i < fields.Len(); i++ {
 		f := fields.Get(i)
 		p := path + "." + string(f.Name())
-		if a.Has(f) != b.Has(f) {
+		// Presence matters for messages and optional fields; a proto3
+		// scalar is "absent" exactly when it is zero, which the value
+		// comparison covers.
+		if (f.HasPresence() || f.Kind() == protoreflect.MessageKind) && !f.IsList() && a.Has(f) != b.Has(f) {
 			*out = append(*out, fmt.Sprintf("%s: present %v vs %v", p, a.Has(f), b.Has(f)))
 			continue
 		}

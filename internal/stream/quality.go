@@ -19,8 +19,6 @@ const medianIntervals = 256
 // trackStats are the running quality figures of one segment over the whole
 // stream, in constant memory.
 type trackStats struct {
-	n           int64
-	first, last float64
 
 	// The first intervals, for the gap bound.
 	early  [medianIntervals]float64
@@ -91,11 +89,11 @@ func (s *trackStats) rate() float64 {
 	return 1 / s.ivMean
 }
 
-// quality returns the summary figures of segment seg.
-func (s *trackStats) quality(seg kinchainv1.Segment, fused bool) *kinchainv1.TrackQuality {
+// quality returns the summary figures of segment seg with n samples.
+func (s *trackStats) quality(seg kinchainv1.Segment, n int64, fused bool) *kinchainv1.TrackQuality {
 	q := &kinchainv1.TrackQuality{
 		Segment:                 seg,
-		Samples:                 int32(min(s.n, math.MaxInt32)),
+		Samples:                 int32(min(n, math.MaxInt32)),
 		EffectiveRateHz:         s.rate(),
 		JitterMs:                s.jitter() * 1000,
 		Gaps:                    int32(min(s.gaps, math.MaxInt32)),
@@ -114,7 +112,7 @@ func (s *trackStats) quality(seg kinchainv1.Segment, fused bool) *kinchainv1.Tra
 // warnings returns the stream-level data-quality warnings of segment seg,
 // with the thresholds of the unary analysis (condition.JitterLimit,
 // condition.LowRateFraction of the highest segment rate top Hz).
-func (s *trackStats) warnings(seg kinchainv1.Segment, top float64) []*kinchainv1.Warning {
+func (s *trackStats) warnings(seg kinchainv1.Segment, n int64, top float64) []*kinchainv1.Warning {
 	var w []*kinchainv1.Warning
 	name := segmentName(seg)
 	if s.gaps > 0 {
@@ -137,7 +135,7 @@ func (s *trackStats) warnings(seg kinchainv1.Segment, top float64) []*kinchainv1
 	}
 	if s.renorm > 0 {
 		w = append(w, &kinchainv1.Warning{Code: kinchainv1.WarningCode_WARNING_CODE_RENORMALIZED, Segment: seg,
-			Message: fmt.Sprintf("%s: %d of %d quaternions were not of unit length and were rescaled", name, s.renorm, s.n)})
+			Message: fmt.Sprintf("%s: %d of %d quaternions were not of unit length and were rescaled", name, s.renorm, n)})
 	}
 	return w
 }

@@ -33,7 +33,7 @@ const (
 // segState is one declared segment of a stream.
 type segState struct {
 	seg   kinchainv1.Segment
-	name  string // segmentName(seg), for messages
+	name  string       // segmentName(seg), for messages
 	mount *quat.Number // from the header, or from the neutral window
 	ring  *ring        // nil until the segment's first samples
 	stats trackStats
@@ -176,15 +176,17 @@ func NewSession(h *kinchainv1.StreamHeader, lim Limits) (*Session, error) {
 	return s, nil
 }
 
-// cutoff returns the live detector's low-pass cutoff, Hz: the analysis
-// cutoff (kinematics.DefaultCutoff unless the options set one; the default
-// also under residual analysis), kept below 0.45 × rate.
+// cutoff returns the live detector's low-pass cutoff, Hz:
+// LiveCutoffFraction of the analysis cutoff (kinematics.DefaultCutoff
+// unless the options set one; the default also under residual analysis),
+// kept below 0.45 × rate; 0 (no filter) when the options turn filtering
+// off.
 func (s *Session) cutoff() float64 {
 	c := kinematics.DefaultCutoff
 	if s.opts.CutoffHz != nil && !s.opts.GetResidualCutoff() {
 		c = s.opts.GetCutoffHz()
 	}
-	return math.Min(c, 0.45*s.rate)
+	return math.Min(LiveCutoffFraction*c, 0.45*s.rate)
 }
 
 // Push checks a batch and takes in its samples. It returns the events the
@@ -283,9 +285,9 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 			} else {
 				s.det.step(tj, q)
 			}
-			if len(s.det.out) > 0 {
-				out = s.decide(out)
-			}
+		}
+		if s.det != nil && len(s.det.out) > 0 {
+			out = s.decide(out)
 		}
 	}
 	s.samples += int64(n)
@@ -333,9 +335,9 @@ func (s *Session) armStep(st *segState, t float64, q quat.Number) {
 	if st.armHave && s.det != nil {
 		switch {
 		case st.armPrevZ < 0 && z >= 0:
-			s.det.addArm(armCrossing{t: st.armPrevT + (t-st.armPrevT)*crossingAt(st.armPrevZ, z, 0), up: true}, t)
+			s.det.addArm(armCrossing{t: st.armPrevT + (t-st.armPrevT)*crossingAt(st.armPrevZ, z, 0), at: t, up: true})
 		case st.armPrevZ >= 0 && z < 0:
-			s.det.addArm(armCrossing{t: st.armPrevT + (t-st.armPrevT)*crossingAt(st.armPrevZ, z, 0)}, t)
+			s.det.addArm(armCrossing{t: st.armPrevT + (t-st.armPrevT)*crossingAt(st.armPrevZ, z, 0), at: t})
 		}
 	}
 	st.armPrevZ, st.armPrevT, st.armHave = z, t, true
@@ -348,8 +350,8 @@ func (s *Session) decide(out []*kinchainv1.StreamCaptureResponse) []*kinchainv1.
 		case decEvent:
 			out = append(out, &kinchainv1.StreamCaptureResponse{Message: &kinchainv1.StreamCaptureResponse_Event{
 				Event: &kinchainv1.StreamEvent{
-					SwingIndex: int32(s.nextIndex),
-					Event:      &kinchainv1.Event{Kind: d.event, TimeS: d.t},
+					SwingIndex:  int32(s.nextIndex),
+					Event:       &kinchainv1.Event{Kind: d.event, TimeS: d.t},
 					DetectedAtS: d.at,
 				}}})
 		case decComplete:
@@ -433,8 +435,8 @@ func (s *Session) summary() *kinchainv1.StreamSummary {
 		if st.n == 0 {
 			continue
 		}
-		sum.Quality.Tracks = append(sum.Quality.Tracks, st.stats.quality(st.seg, !st.ring.set.has(aQw)))
-		ws = append(ws, st.stats.warnings(st.seg, top)...)
+		sum.Quality.Tracks = append(sum.Quality.Tracks, st.stats.quality(st.seg, st.n, !st.ring.set.has(aQw)))
+		ws = append(ws, st.stats.warnings(st.seg, st.n, top)...)
 	}
 	if s.driver < 0 {
 		ws = append(ws, &kinchainv1.Warning{Code: kinchainv1.WarningCode_WARNING_CODE_SEGMENTS_MISSING,

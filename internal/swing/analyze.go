@@ -7,7 +7,6 @@ import (
 	"strings"
 
 	"gonum.org/v1/gonum/num/quat"
-	"gonum.org/v1/gonum/spatial/r3"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/kinematics"
@@ -68,6 +67,19 @@ type analysis struct {
 	limits   limits
 	swings   []*swingResult
 	warnings []*kinchainv1.Warning
+	// scratch holds reusable series buffers.
+	scratch [4][]float64
+}
+
+// buffers returns two scratch slices of length n from pair k (0 or 1); they
+// stay valid until the next call with the same k.
+func (a *analysis) buffers(k, n int) ([]float64, []float64) {
+	for i := 2 * k; i < 2*k+2; i++ {
+		if cap(a.scratch[i]) < n {
+			a.scratch[i] = make([]float64, n)
+		}
+	}
+	return a.scratch[2*k][:n], a.scratch[2*k+1][:n]
 }
 
 // Analyze finds the swings in a capture's kinematics and reports each one:
@@ -92,9 +104,12 @@ func Analyze(k *kinematics.Result, opt Options) ([]*kinchainv1.SwingReport, []*k
 			(ks.Valid != nil && len(ks.Valid) != a.n) || a.bySeg[ks.Segment] != nil {
 			continue
 		}
-		s := &seg{ks: ks, id: ks.Segment, mag: make([]float64, a.n)}
-		for i, w := range ks.Omega {
-			s.mag[i] = r3.Norm(w)
+		s := &seg{ks: ks, id: ks.Segment, mag: ks.Speed}
+		if k.Speed != kinchainv1.SpeedDefinition_SPEED_DEFINITION_MAGNITUDE {
+			s.mag = make([]float64, a.n)
+			for i, w := range ks.Omega {
+				s.mag[i] = norm(w)
+			}
 		}
 		a.segs = append(a.segs, s)
 		a.bySeg[s.id] = s

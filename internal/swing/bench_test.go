@@ -2,6 +2,7 @@ package swing
 
 import (
 	"testing"
+	"time"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/capture"
@@ -61,4 +62,33 @@ func BenchmarkAnalyze(b *testing.B) {
 			b.Fatalf("%d swings, want 1", len(reps))
 		}
 	}
+}
+
+// BenchmarkAnalyzeShare runs conditioning + kinematics and the analysis in
+// turn on the benchmark capture and reports the analysis time as a
+// percentage of the pipeline's ("analyze-%", budget 20), so that the ratio
+// is measured side by side under the same machine load.
+func BenchmarkAnalyzeShare(b *testing.B) {
+	cc := benchCapture(b)
+	var pipe, an time.Duration
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		t0 := time.Now()
+		cond, err := condition.Run(cc, condition.Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		kin, err := kinematics.Compute(cond, kinematics.Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		t1 := time.Now()
+		if reps, _ := Analyze(kin, Options{}); len(reps) != 1 {
+			b.Fatalf("%d swings, want 1", len(reps))
+		}
+		t2 := time.Now()
+		pipe += t1.Sub(t0)
+		an += t2.Sub(t1)
+	}
+	b.ReportMetric(100*float64(an)/float64(pipe), "analyze-%")
 }

@@ -37,8 +37,9 @@
 //     smallest φ before it, timed by the sign change of dφ/dt next to it;
 //   - takeaway: back from the top through the backswing to where the
 //     driver's speed rises through its onset level;
-//   - address: the last sample at or before the takeaway at which every
-//     present segment is still;
+//   - address: the last sample before the takeaway at which every present
+//     segment is still; when none lies within AddressLookback, the sample
+//     before the takeaway at which the driver is slowest;
 //   - impact: the driver's angle returns to its address value (φ from < 0
 //     to ≥ 0) after the top; with accelerometer readings, moved to the
 //     ball-strike shock when one is found within ShockWindow;

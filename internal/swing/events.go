@@ -43,6 +43,9 @@ const (
 	// and then stops falling (at most FinishSettle later, s).
 	FinishFraction = 0.10
 	FinishSettle   = 0.3
+	// TransitionLookback: a segment's transition is searched from this long
+	// before the top (the plane is still taken at address), s.
+	TransitionLookback = 0.5
 	// AddressLookback bounds the search for the still address before the
 	// takeaway, s.
 	AddressLookback = 2.0
@@ -122,7 +125,9 @@ func (a *analysis) levels(s *seg) {
 			cnt--
 		}
 		if i >= w-1 && cnt >= w/2 {
-			quiet = math.Min(quiet, sum/float64(cnt))
+			if m := sum / float64(cnt); m < quiet {
+				quiet = m
+			}
 		}
 	}
 	if math.IsInf(quiet, 1) {
@@ -223,15 +228,19 @@ func (a *analysis) episode(lo, hi, depth int) {
 		}
 		pk = pk2
 	}
+	if lo == 0 {
+		a.reject(d.ks.Segment, a.time(pk), fmt.Sprintf("the movement before %.3f s starts before the capture (no still address)", a.time(pk)))
+		return
+	}
 	// Pass 1: a provisional address just before the movement.
 	from := max(0, lo-int(math.Round(0.3/a.dt)))
-	sw, why := a.detect(from, hi, pk)
+	sw, why := a.detect(from, hi, pk, false)
 	if sw == nil {
 		a.reject(d.ks.Segment, a.time(pk), why+a.gapNote(from, hi))
 		return
 	}
 	// Pass 2: the frame and plane at the address found.
-	sw2, why := a.detect(sw.addrIdx, hi, pk)
+	sw2, why := a.detect(sw.addrIdx, hi, pk, true)
 	end := hi
 	if sw2 != nil {
 		sw = sw2
@@ -286,18 +295,15 @@ func (a *analysis) gapNote(lo, hi int) string {
 // dφ/dt, indexed from from.
 func (a *analysis) driverSeries(f *frame, from, hi int) (phi, rate []float64, ok bool) {
 	d := a.driver
-	ax := pointerAxis(d.id)
-	p0 := rot.Rotate(f.orientation(d.ks.Q[from]), ax)
+	p0 := f.pointer(d.id, d.ks.Q[from])
 	pl, ok := planeFor(d.id, p0)
 	if !ok {
 		return nil, nil, false
 	}
-	phi = make([]float64, hi-from+1)
-	rate = make([]float64, hi-from+1)
+	phi, rate = a.buffers(0, hi-from+1)
 	prev := 0.0
 	for i := from; i <= hi; i++ {
-		q := f.orientation(d.ks.Q[i])
-		p := rot.Rotate(q, ax)
+		p := f.pointer(d.id, d.ks.Q[i])
 		ang := pl.angle(p)
 		if i > from {
 			ang = prev + wrapPi(ang-wrapPi(prev))
@@ -312,10 +318,14 @@ func (a *analysis) driverSeries(f *frame, from, hi int) (phi, rate []float64, ok
 // detect finds the driver's events of the swing whose fastest moment is pk,
 // with the frame and plane taken at sample from. It returns the swing (nil
 // when not even the takeaway was found) and, when the swing fails a
-// criterion, the reasons.
-func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
+// criterion, the reasons. Without full it stops after the address (the
+// first pass, which only places the address).
+func (a *analysis) detect(from, hi, pk int, full bool) (*swingResult, string) {
 	d := a.driver
 	f := a.frameAt(from)
+	if !full {
+		hi = pk
+	}
 	phi, rate, ok := a.driverSeries(&f, from, hi)
 	if !ok {
 		return nil, fmt.Sprintf("the %s points straight up or down at address", segName(d.id))
@@ -349,23 +359,38 @@ func (a *analysis) detect(from, hi, pk int) (*swingResult, string) {
 	for i > from && d.valid(i-1) && d.mag[i] > d.onset && r(i) < 0 {
 		i--
 	}
+	if i == 0 && d.mag[0] > d.onset {
+		return nil, fmt.Sprintf("the backswing before the top at %.3f s starts before the capture (no still address)", top)
+	}
 	take := a.time(i)
 	if i+1 <= hi {
 		take += a.dt * crossing(d.mag[i], d.mag[i+1], d.onset)
 	}
-	// Address: the last moment at or before the takeaway when every
-	// present segment is still.
-	ad := i
+	// Address: the last moment before the takeaway when every present
+	// segment is still; when no such moment lies within AddressLookback
+	// (a player who keeps some segment moving, e.g. a waggle of the head or
+	// the trail arm), the moment before the takeaway at which the driver is
+	// slowest.
 	limit := max(from, i-int(math.Round(AddressLookback/a.dt)))
+	ad := i - 1
 	for ad > limit && !a.allStill(ad) {
 		ad--
 	}
-	if !a.allStill(ad) {
+	if ad < 0 || !a.allStill(ad) {
 		ad = i
+		best := math.Inf(1)
+		for k := i - 1; k >= limit && k >= 0; k-- {
+			if d.valid(k) && d.mag[k] < best {
+				best, ad = d.mag[k], k
+			}
+		}
 	}
 	sw := &swingResult{f: f, addrIdx: ad, topIdx: j, peakIdx: pk, finishIdx: -1,
 		address: a.time(ad), takeaway: take, top: top,
 		transitions: map[kinchainv1.Segment]float64{}, transIdx: map[kinchainv1.Segment]int{}}
+	if !full {
+		return sw, ""
+	}
 	sw.amplitude = -ph(j)
 	if j+1 <= hi {
 		sw.amplitude = -(ph(j) + (ph(j+1)-ph(j))*(top-a.time(j))/a.dt)
@@ -491,7 +516,7 @@ func (a *analysis) refineImpact(sw *swingResult) {
 		if i < 1 || i >= a.n || !s.valid(i) || !s.valid(i-1) {
 			return math.NaN()
 		}
-		return r3.Norm(r3.Sub(acc[i], acc[i-1]))
+		return norm(r3.Sub(acc[i], acc[i-1]))
 	}
 	var base []float64
 	for i := sw.topIdx + 1; i < c-w; i++ {
@@ -585,8 +610,7 @@ func (a *analysis) complete(sw *swingResult) {
 // segment moved backward before it and forward after it faster than its
 // still level.
 func (a *analysis) transition(s *seg, f *frame, addr, top, end int) (t float64, j int, ok bool) {
-	ax := pointerAxis(s.id)
-	pl, ok := planeFor(s.id, rot.Rotate(f.orientation(s.ks.Q[addr]), ax))
+	pl, ok := planeFor(s.id, f.pointer(s.id, s.ks.Q[addr]))
 	if !ok {
 		return 0, 0, false
 	}
@@ -599,17 +623,20 @@ func (a *analysis) transition(s *seg, f *frame, addr, top, end int) (t float64, 
 	if pk <= addr {
 		return 0, 0, false
 	}
-	phi := make([]float64, pk-addr+1)
-	rate := make([]float64, pk-addr+1)
-	prev := 0.0
+	// The reversal is searched from TransitionLookback before the top (or
+	// the address, if later); the plane stays the one at address. φ here is
+	// the running trapezoidal integral of dφ/dt (its extreme is where the
+	// rate changes sign, as for the angle itself, without an atan2 per
+	// sample).
+	addr = max(addr, top-int(math.Round(TransitionLookback/a.dt)))
+	phi, rate := a.buffers(1, pk-addr+1)
 	for i := addr; i <= pk; i++ {
-		p := rot.Rotate(f.orientation(s.ks.Q[i]), ax)
-		ang := pl.angle(p)
-		if i > addr {
-			ang = prev + wrapPi(ang-wrapPi(prev))
+		rate[i-addr] = pl.rate(f.pointer(s.id, s.ks.Q[i]), f.omega(s.ks.Omega[i]))
+		if i == addr {
+			phi[0] = 0
+		} else {
+			phi[i-addr] = phi[i-addr-1] + 0.5*a.dt*(rate[i-addr]+rate[i-addr-1])
 		}
-		phi[i-addr], prev = ang, ang
-		rate[i-addr] = pl.rate(p, f.omega(s.ks.Omega[i]))
 	}
 	j, t, ok = reversal(phi, rate, addr, pk, s.valid, a)
 	if !ok {

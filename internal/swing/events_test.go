@@ -296,3 +296,20 @@ func TestRandomAndStillInput(t *testing.T) {
 		t.Fatalf("still capture: %d swings, warnings %v", len(reps), warns)
 	}
 }
+
+// A capture that starts in the middle of the backswing has no address: the
+// swing is rejected with that reason.
+func TestCaptureStartsInBackswing(t *testing.T) {
+	c, _ := generate(t, synth.Config{})
+	for _, tk := range c.Tracks {
+		k := 0
+		for k < len(tk.TimeS) && tk.TimeS[k] < 1.4 {
+			k++
+		}
+		tk.TimeS, tk.Qw, tk.Qx, tk.Qy, tk.Qz = tk.TimeS[k:], tk.Qw[k:], tk.Qx[k:], tk.Qy[k:], tk.Qz[k:]
+	}
+	_, reps, warns := pipeline(t, c, noFilter())
+	if len(reps) != 0 || len(warns) != 1 || !strings.Contains(warns[0].Message, "starts before the capture") {
+		t.Fatalf("%d swings, warnings %v", len(reps), warns)
+	}
+}

@@ -20,14 +20,44 @@ type frame struct {
 	// heading is the world heading of x_T, rad counter-clockwise from
 	// world +x about +z.
 	heading float64
-	// toT turns world vectors into the target-line frame: Yaw(−heading).
+	// toT turns world vectors into the target-line frame: Yaw(−heading);
+	// c, s are cos and sin of the heading.
 	toT    quat.Number
+	c, s   float64
 	mirror bool
 }
 
 // newFrame returns the frame whose x axis has the given world heading.
 func newFrame(heading float64, left bool) frame {
-	return frame{heading: heading, toT: rot.YawRotation(-heading), mirror: left}
+	s, c := math.Sincos(heading)
+	return frame{heading: heading, toT: rot.YawRotation(-heading), c: c, s: s, mirror: left}
+}
+
+// vector returns a world vector (a direction: polar) in the (mirrored)
+// target-line frame: turned by −heading about z, then y → −y when
+// mirrored.
+func (f *frame) vector(v r3.Vec) r3.Vec {
+	x, y := f.c*v.X+f.s*v.Y, -f.s*v.X+f.c*v.Y
+	if f.mirror {
+		y = -y
+	}
+	return r3.Vec{X: x, Y: y, Z: v.Z}
+}
+
+// pointer returns the pointer of segment s (see pointerAxis) with world
+// orientation q, in the (mirrored) target-line frame: a column of q's
+// rotation matrix, turned into the frame. The mirror of a direction
+// carried by a mirrored orientation is the mirrored direction:
+// M R M a = M R a for a = x or −z, both in the mirror plane (M a = a).
+func (f *frame) pointer(s kinchainv1.Segment, q quat.Number) r3.Vec {
+	w, x, y, z := q.Real, q.Imag, q.Jmag, q.Kmag
+	var p r3.Vec
+	if bodySegment(s) {
+		p = r3.Vec{X: 1 - 2*(y*y+z*z), Y: 2 * (x*y + w*z), Z: 2 * (x*z - w*y)}
+	} else {
+		p = r3.Vec{X: -2 * (x*z + w*y), Y: -2 * (y*z - w*x), Z: -(1 - 2*(x*x+y*y))}
+	}
+	return f.vector(p)
 }
 
 // headingFromTarget returns the heading of x_T for a target direction
@@ -68,11 +98,11 @@ func (f *frame) orientation(q quat.Number) quat.Number {
 // omega returns a world angular velocity expressed in the (mirrored)
 // target-line frame.
 func (f *frame) omega(w r3.Vec) r3.Vec {
-	w = rot.Rotate(f.toT, w)
+	x, y := f.c*w.X+f.s*w.Y, -f.s*w.X+f.c*w.Y
 	if f.mirror {
-		w = MirrorAngularVelocity(w)
+		return r3.Vec{X: -x, Y: y, Z: -w.Z}
 	}
-	return w
+	return r3.Vec{X: x, Y: y, Z: w.Z}
 }
 
 // bodySegment reports whether s is a trunk segment (pelvis, thorax, head),
@@ -117,14 +147,14 @@ func planeFor(s kinchainv1.Segment, p r3.Vec) (pl plane, ok bool) {
 	y := r3.Vec{Y: 1}
 	if !bodySegment(s) {
 		c := r3.Cross(p, y)
-		if nc := r3.Norm(c); nc >= minPlaneSine {
+		if nc := norm(c); nc >= minPlaneSine {
 			n := r3.Scale(1/nc, c)
 			e1 := unit(r3.Sub(p, r3.Scale(r3.Dot(p, n), n)))
 			return plane{n: n, e1: e1, e2: r3.Cross(n, e1)}, true
 		}
 	}
 	h := r3.Vec{X: p.X, Y: p.Y}
-	nh := r3.Norm(h)
+	nh := norm(h)
 	if nh < 1e-6 {
 		return plane{}, false
 	}
@@ -155,19 +185,29 @@ func (pl *plane) rate(p, w r3.Vec) float64 {
 }
 
 func unit(v r3.Vec) r3.Vec {
-	n := r3.Norm(v)
+	n := norm(v)
 	if n == 0 {
 		return v
 	}
 	return r3.Scale(1/n, v)
 }
 
+// wrapPi maps an angle to (−π, π]. Inputs far outside (beyond ±64π) are
+// reduced with math.Remainder first; the loops handle the common case of a
+// difference of two wrapped angles cheaply.
 func wrapPi(x float64) float64 {
-	x = math.Mod(x, 2*math.Pi)
-	if x > math.Pi {
+	if x > 64*math.Pi || x < -64*math.Pi {
+		x = math.Remainder(x, 2*math.Pi)
+	}
+	for x > math.Pi {
 		x -= 2 * math.Pi
-	} else if x <= -math.Pi {
+	}
+	for x <= -math.Pi {
 		x += 2 * math.Pi
 	}
 	return x
 }
+
+// norm returns |v| (without the overflow care of r3.Norm, which speeds
+// never need).
+func norm(v r3.Vec) float64 { return math.Sqrt(v.X*v.X + v.Y*v.Y + v.Z*v.Z) }

@@ -233,3 +233,27 @@ func TestPosturesAtEvents(t *testing.T) {
 		}
 	}
 }
+
+// The fast pointer and ω of the frame equal the quaternion route: rotate
+// the axis by Mirror(Yaw(−heading) ⊗ q), and rotate then mirror ω.
+func TestFramePointerMatchesQuaternion(t *testing.T) {
+	r := rand.New(rand.NewPCG(7, 8))
+	for i := 0; i < 200; i++ {
+		f := newFrame(r.Float64()*6-3, i%2 == 1)
+		q := randRot(r)
+		for _, s := range []kinchainv1.Segment{pelvis, clubSeg} {
+			want := rot.Rotate(f.orientation(q), pointerAxis(s))
+			if d := r3.Norm(r3.Sub(f.pointer(s, q), want)); d > 1e-12 {
+				t.Fatalf("pointer off by %g", d)
+			}
+		}
+		w := r3.Vec{X: r.NormFloat64(), Y: r.NormFloat64(), Z: r.NormFloat64()}
+		want := rot.Rotate(f.toT, w)
+		if f.mirror {
+			want = MirrorAngularVelocity(want)
+		}
+		if d := r3.Norm(r3.Sub(f.omega(w), want)); d > 1e-12 {
+			t.Fatalf("ω off by %g", d)
+		}
+	}
+}

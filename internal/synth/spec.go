@@ -75,7 +75,7 @@ func defaultSpecs() map[kinchainv1.Segment]*spec {
 		},
 		head: {
 			body: true, start: 0.05, trans: -0.010, peak: -0.020, speed: 150, amp: 8, finish: 40,
-			flex: [4]float64{30, 28, 30, 5}, lat: [4]float64{0, -5, 5, 0},
+			flex: [4]float64{30, 28, 30, 22}, lat: [4]float64{0, -5, 5, 2},
 			parent: thorax, joint: r3.Vec{Z: 0.45}, sensor: r3.Vec{Z: 0.12},
 		},
 		leadArm: {
