@@ -220,7 +220,7 @@ func (p *streamPrinter) header(name string, h *kinchainv1.StreamHeader, addr str
 	if pace > 0 {
 		how = fmt.Sprintf("at %g× the recorded pace", pace)
 	}
-	p.printf("streaming %s (%d segments, %g Hz) to %s in %g ms batches, %s\n", name, len(h.GetSegments()), h.GetRateHz(), addr, batchMs, how)
+	p.printf("streaming %s (%d segments, %.6g Hz) to %s in %g ms batches, %s\n", name, len(h.GetSegments()), h.GetRateHz(), addr, batchMs, how)
 	p.printf("%10s  %-5s  %-22s %10s  %s\n", "decided", "swing", "event", "time", "latency")
 }
 
