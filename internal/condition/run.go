@@ -319,6 +319,12 @@ func mountings(c *capture.Capture, w *capture.Window, r *Result) ([]mounting, er
 		return nil, err
 	}
 	heading := rot.Heading(rot.Mul(means[ref], rot.Conj(out[ref].m)))
+	if c.Tracks[ref].Mounting == nil {
+		r.Warnings = append(r.Warnings, warning(kinchainv1.WarningCode_WARNING_CODE_NEUTRAL_HEADING_ASSUMED, c.Tracks[ref].Segment, w.Start,
+			"the facing direction in the neutral pose was taken from the %s sensor's x axis; unless that sensor points forward, "+
+				"calibrated segments are turned about their long axes by its mounting yaw (speeds are unaffected; give an explicit "+
+				"mounting for the pelvis or thorax to fix posture angles)", segName(c.Tracks[ref].Segment)))
+	}
 	for i := range c.Tracks {
 		if c.Tracks[i].Mounting != nil {
 			continue

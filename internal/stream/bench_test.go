@@ -3,6 +3,8 @@ package stream
 import (
 	"testing"
 
+	"google.golang.org/protobuf/proto"
+
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/synth"
 )
@@ -100,4 +102,66 @@ func BenchmarkPush(b *testing.B) {
 func BenchmarkPushWithAnalysis(b *testing.B) {
 	h, batches, frames, span := benchStream(b, synth.Config{Segments: sixSegments, Swings: 3, Waggles: 1, HalfSwings: 1})
 	runPush(b, h, batches, frames, span, true)
+}
+
+// BenchmarkSwingAnalysis times the batch analysis of one finished swing's
+// window (copy out of the rings, validation, engine.AnalyzeValidated), the
+// per-swing cost a stream adds to the per-frame cost of BenchmarkPush.
+func BenchmarkSwingAnalysis(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		segs []kinchainv1.Segment
+	}{{"six segments", sixSegments}, {"ten segments", nil}} {
+		b.Run(c.name, func(b *testing.B) {
+			capt, _, err := synth.Generate(synth.Config{Segments: c.segs})
+			if err != nil {
+				b.Fatal(err)
+			}
+			h, _ := HeaderFor(capt, nil)
+			s, err := NewSession(h, Limits{})
+			if err != nil {
+				b.Fatal(err)
+			}
+			if err := Split(capt, 0.010, func(bt *kinchainv1.SampleBatch, _ float64) error {
+				_, err := s.Push(bt)
+				return err
+			}); err != nil {
+				b.Fatal(err)
+			}
+			if s.reports != 1 {
+				b.Fatalf("%d reports", s.reports)
+			}
+			p := s.lastPending
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				if r := s.analyse(&p); r == nil {
+					b.Fatal("no report")
+				}
+			}
+			b.ReportMetric(p.t1-p.t0, "window-s")
+		})
+	}
+}
+
+// BenchmarkBatchUnmarshal times decoding one 10 ms six-segment batch from
+// its wire form, the per-batch work of the gRPC layer in front of Push
+// (for the streams-per-core estimate in NOTES-stream.md).
+func BenchmarkBatchUnmarshal(b *testing.B) {
+	_, batches, _, _ := benchStream(b, synth.Config{Segments: sixSegments})
+	req := &kinchainv1.StreamCaptureRequest{Message: &kinchainv1.StreamCaptureRequest_Batch{Batch: batches[len(batches)/2]}}
+	wire, err := proto.Marshal(req)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.SetBytes(int64(len(wire)))
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		var r kinchainv1.StreamCaptureRequest
+		if err := proto.Unmarshal(wire, &r); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/10, "ns/frame")
 }

@@ -38,6 +38,10 @@ const (
 	// TopConfirmAngle is how far the driver must have turned back toward
 	// the target past its extreme before the top is reported, rad (1°).
 	TopConfirmAngle = 1 * math.Pi / 180
+	// QuietBlock is the span of stream time, s, over which the live quiet
+	// level is kept (see quietUpdate): it holds the lowest QuietWindow
+	// mean of the current and the previous block.
+	QuietBlock = 10.0
 	// LiveCutoffFraction: the live detector's low-pass cutoff is this
 	// fraction of the analysis cutoff (10 Hz for the default 20 Hz). A
 	// causal second-order filter passes far more of the differenced noise
@@ -172,10 +176,13 @@ type detector struct {
 	gPrev r3.Vec
 	vPrev float64
 
-	// Quiet level: the lowest mean speed over any QuietWindow so far.
+	// Quiet level: the lowest mean speed over any QuietWindow in the
+	// current and the previous QuietBlock of stream time.
 	qwin         []float64
 	qpos, qcnt   int
 	qsum, quiet  float64
+	qblock       [2]float64 // lowest window mean in the previous and current block
+	qblockStart  float64
 	still, onset float64
 	lastStill    float64
 	qStill       quat.Number
@@ -225,7 +232,7 @@ type detector struct {
 // Hz (0: unfiltered).
 func newDetector(seg kinchainv1.Segment, rate, cutoff float64, axis r3.Vec, gyroOnly bool, gapBound float64) (*detector, error) {
 	d := &detector{seg: seg, crit: criteriaFor(seg), gyroOnly: gyroOnly, axis: axis, gapBound: gapBound,
-		quiet: math.Inf(1)}
+		quiet: math.Inf(1), qblock: [2]float64{math.Inf(1), math.Inf(1)}}
 	if cutoff > 0 {
 		var err error
 		if d.lpW, err = newCausal(2, cutoff, rate); err != nil {
@@ -332,7 +339,7 @@ func (d *detector) step(t float64, q quat.Number) {
 		d.lpW.step(&x, 3)
 	}
 	v := math.Sqrt(x[0]*x[0] + x[1]*x[1] + x[2]*x[2])
-	d.quietUpdate(v)
+	d.quietUpdate(t, v)
 	p := rot.Rotate(q, d.axis)
 	tPrev, vPrev, qLast := d.tPrev, d.vPrev, d.qPrev
 	d.tPrev, d.qPrev, d.vPrev = t, q, v
@@ -565,8 +572,21 @@ func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q, qLast quat
 	}
 }
 
-// quietUpdate adds speed v to the sliding quiet window.
-func (d *detector) quietUpdate(v float64) {
+// quietUpdate adds speed v at time t to the sliding quiet window. The
+// swing package takes the lowest window mean over the span it analyses;
+// a stream has no end, so the live level is the lowest over the current
+// and the previous QuietBlock, which keeps it near the level the window
+// analysis will see and lets it follow a change of noise (a sensor
+// re-mounted) in a long session.
+func (d *detector) quietUpdate(t, v float64) {
+	if t-d.qblockStart >= QuietBlock {
+		d.qblock[0], d.qblock[1] = d.qblock[1], math.Inf(1)
+		d.qblockStart = t
+		if q := d.qblock[0]; q != d.quiet {
+			d.quiet = q
+			d.levels()
+		}
+	}
 	w := len(d.qwin)
 	if d.qcnt == w {
 		d.qsum -= d.qwin[d.qpos]
@@ -580,7 +600,9 @@ func (d *detector) quietUpdate(v float64) {
 		d.qpos = 0
 	}
 	if d.qcnt == w {
-		if m := d.qsum / float64(w); m < d.quiet {
+		m := d.qsum / float64(w)
+		d.qblock[1] = math.Min(d.qblock[1], m)
+		if m < d.quiet {
 			d.quiet = m
 			d.levels()
 		}

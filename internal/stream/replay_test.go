@@ -71,7 +71,7 @@ func TestSplitReassembles(t *testing.T) {
 // TestHeaderFor: the header announces what the capture holds.
 func TestHeaderFor(t *testing.T) {
 	capt, _, err := synth.Generate(synth.Config{MountingDeg: 10, Rate: 250, RecordTargetHeading: true, TargetHeadingDeg: 30,
-		Handedness: kinchainv1.Handedness_HANDEDNESS_LEFT,
+		Handedness:   kinchainv1.Handedness_HANDEDNESS_LEFT,
 		SegmentRates: map[kinchainv1.Segment]float64{kinchainv1.Segment_SEGMENT_CLUB: 500}})
 	if err != nil {
 		t.Fatal(err)

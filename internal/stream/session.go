@@ -110,8 +110,10 @@ type Session struct {
 	closed bool
 
 	// skipAnalysis, set by benchmarks, drops finished swings instead of
-	// analysing them, to time the per-frame work alone.
+	// analysing them, to time the per-frame work alone; lastPending keeps
+	// the last swing analysed, for timing its analysis alone.
 	skipAnalysis bool
+	lastPending  pending
 }
 
 // neutralWindow is the neutral-pose window, s.
@@ -389,6 +391,7 @@ func (s *Session) flush(all bool, out []*kinchainv1.StreamCaptureResponse) []*ki
 			s.pend = s.pend[1:]
 			continue
 		}
+		s.lastPending = *p
 		if r := s.analyse(p); r != nil {
 			out = append(out, &kinchainv1.StreamCaptureResponse{Message: &kinchainv1.StreamCaptureResponse_Swing{Swing: r}})
 			s.reports++

@@ -212,6 +212,12 @@ const (
 	// The humerothoracic angles are close to gimbal lock (elevation near 0° or
 	// 180°); the plane of elevation and axial rotation are ill-defined.
 	WarningCode_WARNING_CODE_GIMBAL_LOCK WarningCode = 11
+	// Neutral-pose calibration took the player's facing direction from a
+	// sensor without an explicit mounting: a static pose cannot show which way
+	// the body faces relative to that sensor, so every calibrated segment may
+	// be turned about its own long axis by that sensor's mounting yaw. Speeds
+	// are unaffected; posture angles are not.
+	WarningCode_WARNING_CODE_NEUTRAL_HEADING_ASSUMED WarningCode = 12
 )
 
 // Enum value maps for WarningCode.
@@ -229,20 +235,22 @@ var (
 		9:  "WARNING_CODE_NEUTRAL_NOT_STILL",
 		10: "WARNING_CODE_SEGMENTS_MISSING",
 		11: "WARNING_CODE_GIMBAL_LOCK",
+		12: "WARNING_CODE_NEUTRAL_HEADING_ASSUMED",
 	}
 	WarningCode_value = map[string]int32{
-		"WARNING_CODE_UNSPECIFIED":       0,
-		"WARNING_CODE_GAP_NOT_BRIDGED":   1,
-		"WARNING_CODE_RENORMALIZED":      2,
-		"WARNING_CODE_TIMING_JITTER":     3,
-		"WARNING_CODE_GYRO_SATURATION":   4,
-		"WARNING_CODE_ACCEL_CLIPPING":    5,
-		"WARNING_CODE_LOW_RATE":          6,
-		"WARNING_CODE_SWING_REJECTED":    7,
-		"WARNING_CODE_CUTOFF_CLAMPED":    8,
-		"WARNING_CODE_NEUTRAL_NOT_STILL": 9,
-		"WARNING_CODE_SEGMENTS_MISSING":  10,
-		"WARNING_CODE_GIMBAL_LOCK":       11,
+		"WARNING_CODE_UNSPECIFIED":             0,
+		"WARNING_CODE_GAP_NOT_BRIDGED":         1,
+		"WARNING_CODE_RENORMALIZED":            2,
+		"WARNING_CODE_TIMING_JITTER":           3,
+		"WARNING_CODE_GYRO_SATURATION":         4,
+		"WARNING_CODE_ACCEL_CLIPPING":          5,
+		"WARNING_CODE_LOW_RATE":                6,
+		"WARNING_CODE_SWING_REJECTED":          7,
+		"WARNING_CODE_CUTOFF_CLAMPED":          8,
+		"WARNING_CODE_NEUTRAL_NOT_STILL":       9,
+		"WARNING_CODE_SEGMENTS_MISSING":        10,
+		"WARNING_CODE_GIMBAL_LOCK":             11,
+		"WARNING_CODE_NEUTRAL_HEADING_ASSUMED": 12,
 	}
 )
 
@@ -2041,7 +2049,7 @@ const file_kinchain_v1_analysis_proto_rawDesc = "" +
 	"\x11OrientationSource\x12\"\n" +
 	"\x1eORIENTATION_SOURCE_UNSPECIFIED\x10\x00\x12!\n" +
 	"\x1dORIENTATION_SOURCE_QUATERNION\x10\x01\x12\x1d\n" +
-	"\x19ORIENTATION_SOURCE_FUSION\x10\x02*\x91\x03\n" +
+	"\x19ORIENTATION_SOURCE_FUSION\x10\x02*\xbb\x03\n" +
 	"\vWarningCode\x12\x1c\n" +
 	"\x18WARNING_CODE_UNSPECIFIED\x10\x00\x12 \n" +
 	"\x1cWARNING_CODE_GAP_NOT_BRIDGED\x10\x01\x12\x1d\n" +
@@ -2055,7 +2063,8 @@ const file_kinchain_v1_analysis_proto_rawDesc = "" +
 	"\x1eWARNING_CODE_NEUTRAL_NOT_STILL\x10\t\x12!\n" +
 	"\x1dWARNING_CODE_SEGMENTS_MISSING\x10\n" +
 	"\x12\x1c\n" +
-	"\x18WARNING_CODE_GIMBAL_LOCK\x10\v*\xec\x01\n" +
+	"\x18WARNING_CODE_GIMBAL_LOCK\x10\v\x12(\n" +
+	"$WARNING_CODE_NEUTRAL_HEADING_ASSUMED\x10\f*\xec\x01\n" +
 	"\tEventKind\x12\x1a\n" +
 	"\x16EVENT_KIND_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12EVENT_KIND_ADDRESS\x10\x01\x12\x17\n" +
