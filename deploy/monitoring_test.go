@@ -379,7 +379,7 @@ func TestServiceMonitor(t *testing.T) {
 	}
 	svc := monitoredService(t)
 	ep := sm.Spec.Endpoints[0]
-	if ep.Scheme != nil && *ep.Scheme != monitoringv1.SchemeHTTP {
+	if ep.Scheme != nil && ep.Scheme.String() != "http" {
 		t.Errorf("scheme %v: the metrics listener is plain HTTP", *ep.Scheme)
 	}
 	if ep.Port != "metrics" {

@@ -18,6 +18,7 @@ import (
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/engine"
+	"github.com/kinchain/kinchain/internal/plot"
 	"github.com/kinchain/kinchain/internal/server"
 	"github.com/kinchain/kinchain/internal/stream"
 	"github.com/kinchain/kinchain/internal/version"
@@ -148,6 +149,11 @@ func runServe(ctx context.Context, args []string, lookupEnv func(string) (string
 	if err != nil {
 		return err
 	}
+	srv.HandleHTTP("POST /v1/captures:plot", plot.Handler(eng, plot.HandlerConfig{
+		MaxBodyBytes: int64(f.cfg.MaxRecvMsgBytes),
+		QueryOptions: server.QueryOptions, // same option syntax as :analyze
+		WriteError:   srv.WriteHTTPError,  // same error JSON and status mapping
+	}))
 	a := srv.Addrs()
 	log.Info("kinchain serve starting",
 		slog.String("version", version.Version), slog.String("commit", version.Commit),

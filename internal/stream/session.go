@@ -68,9 +68,8 @@ func (st *segState) firstTime(t0 float64) float64 {
 
 // pending is a finished swing waiting for its analysis.
 type pending struct {
-	index          int
+	index          int // the swing index its events carried
 	t0, t1, impact float64
-	driverAt       float64 // driver time when it finished
 }
 
 // Session is the state of one StreamCapture call: the header, a bounded
@@ -98,9 +97,8 @@ type Session struct {
 	first, last float64
 	haveTime    bool
 
-	nextIndex int // index of the next swing (reports sent + pending)
-	reports   int
-	pend      []pending
+	reports int // swing reports sent
+	pend    []pending
 
 	warnings []*kinchainv1.Warning
 	dropped  int
@@ -352,13 +350,12 @@ func (s *Session) decide(out []*kinchainv1.StreamCaptureResponse) []*kinchainv1.
 		case decEvent:
 			out = append(out, &kinchainv1.StreamCaptureResponse{Message: &kinchainv1.StreamCaptureResponse_Event{
 				Event: &kinchainv1.StreamEvent{
-					SwingIndex:  int32(s.nextIndex),
+					SwingIndex:  int32(s.reports + len(s.pend)),
 					Event:       &kinchainv1.Event{Kind: d.event, TimeS: d.t},
 					DetectedAtS: d.at,
 				}}})
 		case decComplete:
-			s.pend = append(s.pend, pending{index: s.nextIndex, t0: d.t0, t1: d.t1, impact: d.impact, driverAt: d.at})
-			s.nextIndex++
+			s.pend = append(s.pend, pending{index: s.reports + len(s.pend), t0: d.t0, t1: d.t1, impact: d.impact})
 		}
 	}
 	s.det.out = s.det.out[:0]
@@ -644,6 +641,8 @@ func (s *Session) analyse(p *pending) *kinchainv1.SwingReport {
 		return reject("window %.3f..%.3f s: %s", p.t0, p.t1, why)
 	}
 	r := resp.GetSwings()[best]
-	r.Index = int32(p.index)
+	// The index counts the swings reported before it, as the unary
+	// analysis counts the swings of a capture.
+	r.Index = int32(s.reports)
 	return r
 }
