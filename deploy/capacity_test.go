@@ -18,6 +18,7 @@ import (
 
 	"github.com/kinchain/kinchain/api/client"
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/server"
 	"github.com/kinchain/kinchain/internal/synth"
 )
 
@@ -74,6 +75,36 @@ func procPeakRSS(pid int) (int64, error) {
 	}
 	kb, err := strconv.ParseInt(string(m[1]), 10, 64)
 	return kb << 10, err
+}
+
+// procRSS returns VmRSS of a process, bytes.
+func procRSS(pid int) (int64, error) {
+	b, err := os.ReadFile("/proc/" + strconv.Itoa(pid) + "/status")
+	if err != nil {
+		return 0, err
+	}
+	m := regexp.MustCompile(`(?m)^VmRSS:\s+(\d+) kB`).FindSubmatch(b)
+	if m == nil {
+		return 0, errors.New("no VmRSS")
+	}
+	kb, err := strconv.ParseInt(string(m[1]), 10, 64)
+	return kb << 10, err
+}
+
+// maxRecvBytes is the body limit the pod runs with: KINCHAIN_MAX_RECV_BYTES,
+// else the server's default.
+func maxRecvBytes(tb testing.TB, env map[string]string) int {
+	tb.Helper()
+	v, ok := env[envForFlag("max-recv-bytes")]
+	if !ok {
+		return server.DefaultConfig().MaxRecvMsgBytes
+	}
+	m := regexp.MustCompile(`^(\d+)(B|KiB|MiB|GiB)?$`).FindStringSubmatch(v)
+	if m == nil {
+		tb.Fatalf("KINCHAIN_MAX_RECV_BYTES=%q: not understood by this check", v)
+	}
+	n, _ := strconv.Atoi(m[1])
+	return n << map[string]uint{"": 0, "B": 0, "KiB": 10, "MiB": 20, "GiB": 30}[m[2]]
 }
 
 // resetPeakRSS resets VmHWM to the current RSS (proc(5), clear_refs "5").
@@ -213,6 +244,9 @@ func BenchmarkCapacity(b *testing.B) {
 	}
 	p := startServe(b, kinchainBinary(b), serveOpts{args: loopbackArgs, env: penv})
 	pid := p.cmd.Process.Pid
+	if rss, err := procRSS(pid); err == nil {
+		b.Logf("idle server: resident set %.1f MiB", float64(rss)/(1<<20))
+	}
 	cl, err := client.New("passthrough:///"+p.bound.GRPC, client.Options{Timeout: 2 * time.Minute})
 	if err != nil {
 		b.Fatal(err)
@@ -229,6 +263,22 @@ func BenchmarkCapacity(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+	// The largest capture the body limit lets through: ten segments at
+	// 1 kHz, as many swings as fit under KINCHAIN_MAX_RECV_BYTES.
+	limit := maxRecvBytes(b, env)
+	var huge *kinchainv1.Capture
+	for swings := 40; swings > 0 && huge == nil; swings-- {
+		c, _, err := synth.Generate(synth.Config{Rate: 1000, Swings: swings})
+		if err != nil {
+			continue // longer than the synthesiser allows
+		}
+		if proto.Size(&kinchainv1.AnalyzeCaptureRequest{Capture: c}) < limit-(1<<10) {
+			huge = c
+		}
+	}
+	if huge == nil {
+		b.Fatal("no synthetic capture fits under the body limit")
+	}
 	maxReq, _ := strconv.Atoi(env["KINCHAIN_MAX_REQUESTS"])
 	if maxReq == 0 {
 		b.Fatal("the base ConfigMap sets no KINCHAIN_MAX_REQUESTS")
@@ -240,6 +290,7 @@ func BenchmarkCapacity(b *testing.B) {
 	}{
 		{"swing3s", small, []int{1, 2, maxReq}},
 		{"session", large, []int{1, maxReq}},
+		{"maxbody", huge, []int{1, 2}},
 	} {
 		size := proto.Size(tc.c)
 		for _, conc := range tc.conc {

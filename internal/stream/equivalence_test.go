@@ -36,6 +36,10 @@ func TestStreamMatchesUnarySynthetic(t *testing.T) {
 			Neutral: &kinchainv1.TimeWindow{StartS: 0.1, EndS: 0.8}}, 1},
 		{"vertical speed, no filter", synth.Config{}, &kinchainv1.AnalysisOptions{
 			Speed: kinchainv1.SpeedDefinition_SPEED_DEFINITION_VERTICAL, CutoffHz: new(0.0)}, 1},
+		{"dropouts", synth.Config{Dropouts: 5, Swings: 2, Seed: 3}, nil, 2},
+		{"mixed rates", synth.Config{Swings: 2, SegmentRates: map[kinchainv1.Segment]float64{
+			kinchainv1.Segment_SEGMENT_PELVIS: 200, kinchainv1.Segment_SEGMENT_HEAD: 100}}, nil, 2},
+		{"hemisphere flips", synth.Config{HemisphereFlips: true, Swings: 2, Seed: 8}, nil, 2},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
