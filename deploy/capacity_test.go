@@ -242,16 +242,24 @@ func BenchmarkCapacity(b *testing.B) {
 	for k, v := range env {
 		penv = append(penv, k+"="+v)
 	}
-	p := startServe(b, kinchainBinary(b), serveOpts{args: loopbackArgs, env: penv})
-	pid := p.cmd.Process.Pid
-	if rss, err := procRSS(pid); err == nil {
-		b.Logf("idle server: resident set %.1f MiB", float64(rss)/(1<<20))
+	bin := kinchainBinary(b)
+	// Each sub-benchmark gets a fresh server, so that its peak resident set
+	// is its own (Go returns freed memory to the kernel only gradually).
+	fresh := func(b *testing.B) (int, *client.Client) {
+		p := startServe(b, bin, serveOpts{args: loopbackArgs, env: penv})
+		cl, err := client.New("passthrough:///"+p.bound.GRPC, client.Options{Timeout: 5 * time.Minute})
+		if err != nil {
+			b.Fatal(err)
+		}
+		b.Cleanup(func() { cl.Close() })
+		return p.cmd.Process.Pid, cl
 	}
-	cl, err := client.New("passthrough:///"+p.bound.GRPC, client.Options{Timeout: 2 * time.Minute})
-	if err != nil {
-		b.Fatal(err)
+	{
+		pid, _ := fresh(b)
+		if rss, err := procRSS(pid); err == nil {
+			b.Logf("idle server: resident set %.1f MiB", float64(rss)/(1<<20))
+		}
 	}
-	defer cl.Close()
 	ctx := context.Background()
 
 	small, _, err := synth.Generate(synth.Config{Rate: 1000, Duration: 3, LeadIn: 0.5, Tail: 0.3, Segments: benchSegments})
@@ -263,16 +271,23 @@ func BenchmarkCapacity(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	// The largest capture the body limit lets through: ten segments at
-	// 1 kHz, as many swings as fit under KINCHAIN_MAX_RECV_BYTES.
+	// The largest capture the body limit (KINCHAIN_MAX_RECV_BYTES) lets
+	// through: ten segments at 1 kHz,
 	limit := maxRecvBytes(b, env)
-	var huge *kinchainv1.Capture
-	for swings := 40; swings > 0 && huge == nil; swings-- {
-		c, _, err := synth.Generate(synth.Config{Rate: 1000, Swings: swings})
+	// the synthesiser's most swings (20), the time between them stretched
+	// (Pause) until the capture nearly fills the limit.
+	sizeOf := func(pause float64) (*kinchainv1.Capture, int) {
+		c, _, err := synth.Generate(synth.Config{Rate: 1000, Swings: 20, Pause: pause})
 		if err != nil {
-			continue // longer than the synthesiser allows
+			b.Fatal(err)
 		}
-		if proto.Size(&kinchainv1.AnalyzeCaptureRequest{Capture: c}) < limit-(1<<10) {
+		return c, proto.Size(&kinchainv1.AnalyzeCaptureRequest{Capture: c})
+	}
+	_, s1 := sizeOf(1)
+	_, s2 := sizeOf(2)
+	var huge *kinchainv1.Capture
+	for pause := 1 + float64(limit-s1)/float64(s2-s1); pause >= 1 && huge == nil; pause -= 0.1 {
+		if c, n := sizeOf(pause); n < limit-(1<<10) {
 			huge = c
 		}
 	}
@@ -290,12 +305,13 @@ func BenchmarkCapacity(b *testing.B) {
 	}{
 		{"swing3s", small, []int{1, 2, maxReq}},
 		{"session", large, []int{1, maxReq}},
-		{"maxbody", huge, []int{1, 2}},
+		{"maxbody", huge, []int{1, 2, maxReq}},
 	} {
 		size := proto.Size(tc.c)
 		for _, conc := range tc.conc {
 			b.Run(fmt.Sprintf("unary-%s/c=%d", tc.name, conc), func(b *testing.B) {
 				b.SetBytes(int64(size))
+				pid, cl := fresh(b)
 				measured(b, pid, captureSamples(tc.c), func() {
 					concurrently(b, conc, func() error { _, err := cl.Analyze(ctx, tc.c, nil); return err })
 				})
@@ -314,6 +330,7 @@ func BenchmarkCapacity(b *testing.B) {
 		b.Fatal(err)
 	}
 	b.Run(fmt.Sprintf("stream-session/c=%d", maxStreams), func(b *testing.B) {
+		pid, cl := fresh(b)
 		measured(b, pid, captureSamples(streamed), func() {
 			concurrently(b, maxStreams, func() error { return streamCapture(ctx, cl, streamed, 1000, 0.1) })
 		})

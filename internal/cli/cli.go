@@ -54,6 +54,8 @@ func Main(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 		err = RunPlot(ctx, rest, stdin, stdout, stderr)
 	case "serve":
 		err = RunServe(ctx, rest, stdout, stderr)
+	case "stream":
+		err = RunStream(ctx, rest, stdin, stdout, stderr)
 	case "version":
 		err = RunVersion(rest, stdout)
 	case "help", "-h", "--help":

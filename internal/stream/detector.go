@@ -39,8 +39,9 @@ const (
 	// the target past its extreme before the top is reported, rad (1°).
 	TopConfirmAngle = 1 * math.Pi / 180
 	// QuietBlock is the span of stream time, s, over which the live quiet
-	// level is kept (see quietUpdate): it holds the lowest QuietWindow
-	// mean of the current and the previous block.
+	// level is kept: the lowest swing.QuietWindow mean speed of the current
+	// and the previous block (a stream has no end to take the lowest over,
+	// as the swing package does over its span).
 	QuietBlock = 10.0
 	// LiveCutoffFraction: the live detector's low-pass cutoff is this
 	// fraction of the analysis cutoff (10 Hz for the default 20 Hz). A

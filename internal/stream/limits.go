@@ -16,9 +16,10 @@ import (
 // never grown past that; MaxBufferBytes caps the sum over segments.
 type Limits struct {
 	// MaxBufferedSeconds is how much stream time each segment's ring buffer
-	// holds at the header rate, s. It bounds the analysis window of one swing
-	// (PreRoll + address-to-finish + PostRoll), so longer swings are cut
-	// at the finish timeout (see SwingTimeout). Default 12.
+	// holds at the header rate, s. The longest analysis window is PreRoll +
+	// MaxBackswing + MaxDownswing + MaxFollowThrough + swing.FinishSettle +
+	// PostRoll = 9.8 s; with less, the windows of the slowest swings are
+	// shortened (with a warning). Default 12.
 	MaxBufferedSeconds float64
 	// MaxBatchSamples is the most samples (entries of time_s) one batch may
 	// carry, summed over its tracks. Default 10,000 (1 s of ten segments at
