@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"bytes"
 	"context"
 	"flag"
 	"fmt"
@@ -8,6 +9,9 @@ import (
 	"os"
 	"strconv"
 	"strings"
+
+	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/encode"
@@ -24,6 +28,7 @@ func RunSynth(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	fs.Float64Var(&cfg.Rate, "rate", 0, "sample rate in Hz (default 1000)")
 	hand := fs.String("handedness", "right", "right or left (the mirror image of the right-handed model)")
 	out := fs.String("out", "", "write to this file instead of standard output")
+	format := fs.String("format", "csv", "output format: csv, json (protojson Capture), pb (binary Capture) or request-json (an AnalyzeCaptureRequest for grpcurl)")
 	registerSynthFaults(fs, &cfg)
 	pos, err := parseArgs(fs, args)
 	if err != nil {
@@ -47,20 +52,34 @@ func RunSynth(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	if err != nil {
 		return err
 	}
-	w := stdout
-	if *out != "" {
-		f, err := os.Create(*out)
-		if err != nil {
+	var data []byte
+	switch *format {
+	case "csv":
+		var b bytes.Buffer
+		if err := encode.WriteCaptureCSV(&b, c); err != nil {
 			return err
 		}
-		defer f.Close()
-		w = f
-		if err := encode.WriteCaptureCSV(w, c); err != nil {
-			return err
-		}
-		return f.Close()
+		data = b.Bytes()
+	case "json":
+		data, err = protojson.MarshalOptions{UseProtoNames: true}.Marshal(c)
+	case "request-json":
+		data, err = protojson.MarshalOptions{UseProtoNames: true}.Marshal(&kinchainv1.AnalyzeCaptureRequest{Capture: c})
+	case "pb":
+		data, err = proto.Marshal(c)
+	default:
+		return usagef("--format: %q is not csv, json, pb or request-json", *format)
 	}
-	return encode.WriteCaptureCSV(w, c)
+	if err != nil {
+		return err
+	}
+	if *format == "json" || *format == "request-json" {
+		data = append(data, '\n')
+	}
+	if *out == "" {
+		_, err = stdout.Write(data)
+		return err
+	}
+	return os.WriteFile(*out, data, 0o644)
 }
 
 // registerSynthFaults adds the flags that shape the model golfer and the

@@ -21,7 +21,8 @@ Files:
   joints.json  joint angles computed here by changing basis into the ISB axes
                (Wu et al. 2002, 2005) and calling as_euler on the ISB sequence,
                a formulation independent of the Go code, which instead renames
-               the sequence's axes. See NOTES-posture.md for the tables.
+               the sequence's axes. See DEVELOPERS.md (Kinematics, Joint
+               angles) for the tables.
 
 Axes. Our segment frames: x anterior, y left, z superior. ISB frames (right
 side): X anterior, Y superior (long axis), Z to the right. Left-side segments
