@@ -44,7 +44,7 @@ var (
 	// kube-state-metrics (its documentation, "Pod Metrics" and
 	// "Horizontal Pod Autoscaler Metrics").
 	kubeStateMetrics = map[string]bool{
-		"kube_pod_container_status_restarts_total":            true,
+		"kube_pod_container_status_restarts_total":             true,
 		"kube_horizontalpodautoscaler_status_current_replicas": true,
 		"kube_horizontalpodautoscaler_spec_max_replicas":       true,
 	}

@@ -31,7 +31,7 @@ func RunPlot(ctx context.Context, args []string, stdin io.Reader, stdout, stderr
 	format := fs.String("format", "", "image format: svg or png (default: from --out's extension, else svg)")
 	swing := fs.Int("swing", 0, "0-based index of the swing to draw")
 	out := fs.String("out", "", "write the image to this file instead of standard output")
-	width := fs.Int("width", plot.DefaultWidthPx, "image width in pixels (400 to 4000; height is 1.25 × width)")
+	width := fs.Int("width", plot.DefaultWidthPx, "image width in pixels (400 to 2400; height is 1.25 × width)")
 	fromMs := fs.Float64("from-ms", 0, "start of the speed panel's window, ms relative to impact (with --to-ms; default automatic)")
 	toMs := fs.Float64("to-ms", 0, "end of the speed panel's window, ms relative to impact (with --from-ms)")
 	segments := fs.String("segments", "", "comma-separated segments to draw, e.g. pelvis,thorax,lead_upper_arm,club (default: the swing's kinematic sequence)")

@@ -229,7 +229,7 @@ func runBaseline(tr *broadTrial, f interface {
 // Targets (issue text): 9D total RMSE ≤ 2.0° on 07_undisturbed_fast_rotation_B
 // and ≤ 1.5° on 24_disturbed_tapping_A. The 6D inclination bound 2° and the
 // 9D heading and inclination bounds are what this implementation measured
-// (see NOTES-fusion.md) with margin.
+// (see DEVELOPERS.md, "Fusion") with margin.
 //
 // The evaluation itself is checked against figures from outside: the issue
 // gives the total RMSE of the npm package ahrs 1.3.3 on these trials —

@@ -21,7 +21,7 @@ import (
 // must also match the model's within 3° after removing one constant
 // heading offset per track (measured: 2.4° at the club, whose sensor moves
 // 1.5 m at up to ≈ 20 m/s: VQF's accelerometer low-pass lets a little of
-// the velocity through, see NOTES-fusion.md), and that offset must be the
+// the velocity through, see DEVELOPERS.md, "Fusion"), and that offset must be the
 // +90° between the model's world (field along +x) and VQF's (field along
 // +y). The model's still lead-in is 1 s, shorter than VQF's start-up
 // averaging (TauAcc = 3 s): this also checks Track's priming.

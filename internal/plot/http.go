@@ -21,6 +21,7 @@ import (
 	"google.golang.org/protobuf/reflect/protoreflect"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/httpbody"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -128,11 +129,13 @@ func (h *handler) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	}
 	opt.Format = format
 
-	csv, err := isCSV(r.Header.Get("Content-Type"))
-	if err != nil {
-		h.fail(w, r, http.StatusUnsupportedMediaType, violation(codes.InvalidArgument, "Content-Type", "UNSUPPORTED_MEDIA_TYPE", "%v", err))
+	kind, r := httpbody.Classify(r)
+	if kind == httpbody.Unsupported {
+		h.fail(w, r, http.StatusUnsupportedMediaType, violation(codes.InvalidArgument, "Content-Type", "UNSUPPORTED_MEDIA_TYPE",
+			"%q is not application/json or text/csv", r.Header.Get("Content-Type")))
 		return
 	}
+	csv := kind == httpbody.CSV
 	body := http.MaxBytesReader(w, r.Body, h.cfg.MaxBodyBytes)
 	var resp *kinchainv1.AnalyzeCaptureResponse
 	if csv {
@@ -344,25 +347,6 @@ func negotiate(values []string) (Format, bool) {
 	}
 	sort.SliceStable(opts, func(a, b int) bool { return opts[a].q > opts[b].q })
 	return opts[0].f, true
-}
-
-// isCSV reports whether the request body is CSV (text/csv) rather than
-// protojson (application/json, any +json type, or no Content-Type).
-func isCSV(contentType string) (bool, error) {
-	if contentType == "" {
-		return false, nil
-	}
-	mt, _, err := mime.ParseMediaType(contentType)
-	if err != nil {
-		return false, fmt.Errorf("%q does not parse: %v", contentType, err)
-	}
-	switch {
-	case mt == "text/csv":
-		return true, nil
-	case mt == "application/json" || strings.HasSuffix(mt, "+json"):
-		return false, nil
-	}
-	return false, fmt.Errorf("%q is not application/json or text/csv", mt)
 }
 
 // plotOptions reads the plot query parameters.

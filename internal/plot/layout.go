@@ -48,7 +48,7 @@ func sub(c draw.Canvas, x0, y0, x1, y1 vg.Length) draw.Canvas {
 }
 
 func (v *view) drawHeader(c draw.Canvas, left, right, top vg.Length) {
-	title := fmt.Sprintf("Swing %d", v.pos)
+	title := fmt.Sprintf("Swing %d of %d", v.pos+1, len(v.resp.GetSwings()))
 	if id := v.resp.GetCaptureId(); id != "" {
 		title += " · " + id
 	}

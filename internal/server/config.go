@@ -34,12 +34,33 @@ type Config struct {
 	// in-memory listeners in tests). Serve closes them.
 	GRPCListener, HTTPListener, MetricsListener net.Listener
 
-	// TLSCertFile and TLSKeyFile, when both set, turn on TLS for gRPC and
-	// the HTTP gateway (PEM files). The metrics listener stays plain HTTP.
+	// HealthAddr, when set, is an extra plain-HTTP listener answering only
+	// GET /healthz and GET /readyz (default "": off), for probes that
+	// cannot present a client certificate or a token. HealthListener is
+	// used instead of listening when set.
+	HealthAddr     string
+	HealthListener net.Listener
+
+	// TLSCertFile and TLSKeyFile, when both set, turn on TLS (≥ 1.2) for
+	// gRPC and the HTTP gateway (PEM files). The metrics and health
+	// listeners stay plain HTTP.
 	TLSCertFile, TLSKeyFile string
+	// TLSClientCAFile, when set, turns on mutual TLS: gRPC and HTTP clients
+	// must present a certificate for client authentication that chains to
+	// a CA in this PEM file; others fail the handshake. Needs TLS.
+	TLSClientCAFile string
+	// TokenFile, when set, turns on bearer-token authentication: every
+	// KinematicsService call and every HTTP route except /healthz and
+	// /readyz needs "authorization: Bearer TOKEN" with a token whose
+	// SHA-256 is listed in the file (format: ParseTokens), and each token's
+	// optional rate limit applies. The file is read once, by New.
+	TokenFile string
 
 	// Reflection registers gRPC server reflection (default true).
 	Reflection bool
+	// Production refuses configurations unfit to face clients: it needs
+	// TLS (TLSCertFile and TLSKeyFile) and reflection off (default false).
+	Production bool
 
 	// MaxRecvMsgBytes bounds one received gRPC message and one HTTP request
 	// body (default 64 MiB). Larger gRPC messages fail with
@@ -110,6 +131,17 @@ func (c Config) Validate() error {
 	if (c.TLSCertFile == "") != (c.TLSKeyFile == "") {
 		errs = append(errs, errors.New("TLSCertFile, TLSKeyFile: set both or neither"))
 	}
+	if c.TLSClientCAFile != "" && !c.TLS() {
+		errs = append(errs, errors.New("TLSClientCAFile: mutual TLS needs TLSCertFile and TLSKeyFile"))
+	}
+	if c.Production {
+		if !c.TLS() {
+			errs = append(errs, errors.New("Production: needs TLS (TLSCertFile and TLSKeyFile)"))
+		}
+		if c.Reflection {
+			errs = append(errs, errors.New("Production: Reflection must be off"))
+		}
+	}
 	positive := []struct {
 		name string
 		v    int64
@@ -138,17 +170,21 @@ func (c Config) Validate() error {
 }
 
 // LogValue renders the configuration for the start-up log line: durations
-// as strings, TLS as the file names only (no key material is ever read into
-// the Config).
+// as strings, TLS and tokens as the file names only (no key material or
+// token hash is ever read into the Config).
 func (c Config) LogValue() slog.Value {
 	return slog.GroupValue(
 		slog.String("grpc_addr", c.GRPCAddr),
 		slog.String("http_addr", c.HTTPAddr),
 		slog.String("metrics_addr", c.MetricsAddr),
+		slog.String("health_addr", c.HealthAddr),
 		slog.Bool("tls", c.TLS()),
 		slog.String("tls_cert_file", c.TLSCertFile),
 		slog.String("tls_key_file", c.TLSKeyFile),
+		slog.String("tls_client_ca_file", c.TLSClientCAFile),
+		slog.String("token_file", c.TokenFile),
 		slog.Bool("reflection", c.Reflection),
+		slog.Bool("production", c.Production),
 		slog.Int("max_recv_msg_bytes", c.MaxRecvMsgBytes),
 		slog.Int("max_send_msg_bytes", c.MaxSendMsgBytes),
 		slog.Int("max_concurrent_requests", c.MaxConcurrentRequests),

@@ -70,7 +70,9 @@ type metrics struct {
 	swings        prometheus.Counter
 	validation    *prometheus.CounterVec // reason
 	panics        prometheus.Counter
-	buildInfo     *prometheus.GaugeVec // version, commit, goversion
+	authFailures  *prometheus.CounterVec // transport, reason
+	rateLimited   *prometheus.CounterVec // token (name from the token file)
+	buildInfo     *prometheus.GaugeVec   // version, commit, goversion
 }
 
 // newMetrics creates the collectors and registers them, with the Go runtime
@@ -138,6 +140,14 @@ func newMetrics(reg prometheus.Registerer) (*metrics, error) {
 			Namespace: namespace, Name: "panics_recovered_total",
 			Help: "Panics in handlers turned into INTERNAL errors (HTTP 500).",
 		}),
+		authFailures: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: namespace, Name: "auth_failures_total",
+			Help: "Requests and handshakes refused by authentication, by transport (grpc, http) and reason: missing_token, malformed_token, unknown_token, no_client_cert, invalid_client_cert.",
+		}, []string{"transport", "reason"}),
+		rateLimited: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: namespace, Name: "rate_limited_total",
+			Help: "Requests refused because their bearer token was over its rate limit, by token name (from the token file).",
+		}, []string{"token"}),
 		buildInfo: prometheus.NewGaugeVec(prometheus.GaugeOpts{
 			Namespace: namespace, Name: "build_info",
 			Help: "Always 1; the labels identify the build.",
@@ -150,6 +160,11 @@ func newMetrics(reg prometheus.Registerer) (*metrics, error) {
 	for _, l := range []string{limitRequests, limitStreams, limitBody} {
 		m.rejected.WithLabelValues(l)
 	}
+	for _, t := range []string{transportGRPC, transportHTTP} {
+		for _, r := range authReasons {
+			m.authFailures.WithLabelValues(t, r)
+		}
+	}
 	for _, r := range validate.AllReasons() {
 		m.validation.WithLabelValues(string(r))
 	}
@@ -160,7 +175,8 @@ func newMetrics(reg prometheus.Registerer) (*metrics, error) {
 		m.grpcRequests, m.grpcDuration, m.grpcMsgBytes,
 		m.httpRequests, m.httpDuration, m.httpBodyBytes,
 		m.inFlight, m.rejected, m.liveStreams, m.streamsEnded,
-		m.samples, m.swings, m.validation, m.panics, m.buildInfo,
+		m.samples, m.swings, m.validation, m.panics,
+		m.authFailures, m.rateLimited, m.buildInfo,
 	}
 	for _, c := range cs {
 		if err := reg.Register(c); err != nil {
@@ -219,8 +235,11 @@ func (r *grpcReporter) PostMsgReceive(msg any, err error, _ time.Duration) {
 	if err != nil {
 		return
 	}
-	if pm, ok := msg.(proto.Message); ok {
-		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(proto.Size(pm)))
+	switch v := msg.(type) {
+	case *rawMessage:
+		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(len(*v)))
+	case proto.Message:
+		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(proto.Size(v)))
 	}
 }
 
