@@ -34,6 +34,7 @@ import (
 //	server-cpu-ms/op   the server process's CPU time (user + system) per analysis or stream
 //	server-peak-MiB    the server's peak resident set during the sub-benchmark (VmHWM, reset before it)
 //	samples/op         samples per analysis or stream
+//	server-rss-MiB     (idle) the resident set of a server that has served nothing
 //
 // The figures in deploy/README.md ("Capacity per replica") come from this
 // benchmark; TestResourcesMatchRunbook checks the manifests against them.
@@ -254,12 +255,14 @@ func BenchmarkCapacity(b *testing.B) {
 		b.Cleanup(func() { cl.Close() })
 		return p.cmd.Process.Pid, cl
 	}
-	{
+	b.Run("idle", func(b *testing.B) {
 		pid, _ := fresh(b)
-		if rss, err := procRSS(pid); err == nil {
-			b.Logf("idle server: resident set %.1f MiB", float64(rss)/(1<<20))
+		rss, err := procRSS(pid)
+		if err != nil {
+			b.Fatal(err)
 		}
-	}
+		b.ReportMetric(float64(rss)/(1<<20), "server-rss-MiB")
+	})
 	ctx := context.Background()
 
 	small, _, err := synth.Generate(synth.Config{Rate: 1000, Duration: 3, LeadIn: 0.5, Tail: 0.3, Segments: benchSegments})

@@ -520,10 +520,12 @@ func TestOverlaysRunWithTheirConfig(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds and runs the binary")
 	}
+	t.Parallel()
 	d := readRepoDockerfile(t)
 	uid, gid := imageUser(t, d)
 	for _, dir := range []string{"overlays/dev", "overlays/production"} {
 		t.Run(filepath.Base(dir), func(t *testing.T) {
+			t.Parallel()
 			b := buildKustomization(t, dir)
 			dep := deploymentOf(t, b)
 			c := serverContainer(t, dep)
@@ -720,6 +722,9 @@ func TestResourcesMatchRunbook(t *testing.T) {
 	}
 	if got := mib(lim[corev1.ResourceMemory]); got < 1.25*fullPeak {
 		t.Errorf("memory limit %.0f MiB < 1.25 × full-load peak %.0f MiB", got, fullPeak)
+	}
+	if maxBody := figure(t, figs, "peak_rss_max_body_full_mib"); mib(lim[corev1.ResourceMemory]) <= maxBody {
+		t.Errorf("memory limit %.0f MiB ≤ the peak with every slot on a maximal body, %.0f MiB", mib(lim[corev1.ResourceMemory]), maxBody)
 	}
 	gm, err := parseGoMemLimit(env["GOMEMLIMIT"])
 	if err != nil {

@@ -216,6 +216,7 @@ func TestBinaryRunsUnprivileged(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds and runs the binary")
 	}
+	t.Parallel()
 	d := readRepoDockerfile(t)
 	uid, gid := imageUser(t, d)
 	base := buildKustomization(t, "base")

@@ -452,8 +452,21 @@ func TestAlertRules(t *testing.T) {
 					t.Errorf("alert %s: no %s", r.Alert, k)
 					continue
 				}
-				if _, err := template.New(k).Funcs(funcs).Parse(v); err != nil {
+				// Prometheus defines these variables before an alert's
+				// templates (rules/alerting.go, "defs").
+				const defs = "{{$labels := .Labels}}{{$externalLabels := .ExternalLabels}}{{$externalURL := .ExternalURL}}{{$value := .Value}}"
+				if _, err := template.New(k).Funcs(funcs).Parse(defs + v); err != nil {
 					t.Errorf("alert %s: %s template: %v", r.Alert, k, err)
+				}
+				if e == nil {
+					continue
+				}
+				if out, known := outputLabels(e); known {
+					for _, m := range regexp.MustCompile(`\$labels\.(\w+)`).FindAllStringSubmatch(v, -1) {
+						if !out[m[1]] {
+							t.Errorf("alert %s: %s uses $labels.%s, which the expression does not keep (it keeps %v)", r.Alert, k, m[1], keys(out))
+						}
+					}
 				}
 			}
 			if !bytes.Contains(readme, []byte("### "+r.Alert)) {
@@ -531,9 +544,6 @@ func TestDashboard(t *testing.T) {
 	}
 	if cm.Labels["grafana_dashboard"] != "1" {
 		t.Error("the dashboard ConfigMap lacks the grafana_dashboard: \"1\" label Grafana's sidecar looks for")
-	}
-	type target struct {
-		Expr, RefID string
 	}
 	type panel struct {
 		ID         int    `json:"id"`
@@ -682,4 +692,51 @@ func TestQueryCheckCatchesMistakes(t *testing.T) {
 	if _, probs := q.check(`sum by (method, code) (rate(kinchain_grpc_requests_total{job="` + q.job + `", method="/kinchain.v1.KinematicsService/AnalyzeCapture"}[5m]))`); len(probs) > 0 {
 		t.Errorf("a correct query failed: %v", probs)
 	}
+}
+
+// outputLabels returns the labels an expression's result series carry,
+// when the expression says (an aggregation "by", through comparisons with
+// numbers, arithmetic without matching modifiers, histogram_quantile,
+// parentheses); known is false otherwise (a bare selector keeps them all).
+func outputLabels(e parser.Expr) (labels map[string]bool, known bool) {
+	switch n := e.(type) {
+	case *parser.ParenExpr:
+		return outputLabels(n.Expr)
+	case *parser.AggregateExpr:
+		if n.Without {
+			return nil, false
+		}
+		out := map[string]bool{}
+		for _, l := range n.Grouping {
+			out[l] = true
+		}
+		return out, true
+	case *parser.BinaryExpr:
+		if n.VectorMatching != nil && (len(n.VectorMatching.MatchingLabels) > 0 || len(n.VectorMatching.Include) > 0) {
+			return nil, false
+		}
+		if _, ok := n.LHS.(*parser.NumberLiteral); ok {
+			return outputLabels(n.RHS)
+		}
+		return outputLabels(n.LHS)
+	case *parser.Call:
+		if n.Func.Name == "histogram_quantile" && len(n.Args) == 2 {
+			out, ok := outputLabels(n.Args[1])
+			if ok {
+				delete(out, "le")
+			}
+			return out, ok
+		}
+	}
+	return nil, false
+}
+
+// keys returns a set's members, sorted.
+func keys(m map[string]bool) []string {
+	var out []string
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
 }

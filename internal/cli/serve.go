@@ -36,14 +36,49 @@ const envPrefix = "KINCHAIN_"
 // Every flag can also be set by an environment variable (see envName);
 // a flag given on the command line wins. The effective configuration is
 // logged at start as one JSON line on stderr, like every log line.
+//
+// `kinchain serve -hash-token` does not serve: it reads one token from
+// stdin (up to the first newline) and prints the line a token file takes
+// for it (its SHA-256 in hex).
 func RunServe(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	if hashTokenRequested(args) {
+		return hashToken(os.Stdin, stdout)
+	}
 	return runServe(ctx, args, os.LookupEnv, stderr, nil)
 }
 
 // serveFlags holds the parsed serve command line.
 type serveFlags struct {
-	cfg      server.Config
-	logLevel slog.Level
+	cfg       server.Config
+	logLevel  slog.Level
+	hashToken bool
+}
+
+// hashTokenRequested reports whether args ask for -hash-token (alone: it
+// takes no other flag).
+func hashTokenRequested(args []string) bool {
+	for _, a := range args {
+		if a == "-hash-token" || a == "--hash-token" || a == "-hash-token=true" || a == "--hash-token=true" {
+			return true
+		}
+	}
+	return false
+}
+
+// hashToken reads a token (the first line of r, without its line end) and
+// writes its SHA-256 in hex, as a token file lists it.
+func hashToken(r io.Reader, w io.Writer) error {
+	b, err := io.ReadAll(io.LimitReader(r, 1<<16))
+	if err != nil {
+		return err
+	}
+	tok, _, _ := strings.Cut(string(b), "\n")
+	tok = strings.TrimSuffix(tok, "\r")
+	if tok == "" {
+		return usagef("-hash-token: no token on stdin (send it without a trailing space, e.g. printf %%s \"$TOKEN\" | kinchain serve -hash-token)")
+	}
+	_, err = fmt.Fprintln(w, server.HashToken(tok))
+	return err
 }
 
 // newServeFlagSet registers the serve flags on one FlagSet writing into f.
@@ -63,9 +98,14 @@ func newServeFlagSet(f *serveFlags, stderr io.Writer) *flag.FlagSet {
 	fs.StringVar(&c.GRPCAddr, "grpc-addr", c.GRPCAddr, "gRPC listen address")
 	fs.StringVar(&c.HTTPAddr, "http-addr", c.HTTPAddr, "HTTP gateway listen address (JSON and CSV analysis, /openapi.json, /healthz, /readyz); empty disables")
 	fs.StringVar(&c.MetricsAddr, "metrics-addr", c.MetricsAddr, "Prometheus /metrics listen address; empty disables")
-	fs.StringVar(&c.TLSCertFile, "tls-cert", "", "PEM certificate file; with -tls-key turns on TLS for gRPC and HTTP (metrics stay plain)")
+	fs.StringVar(&c.HealthAddr, "health-addr", c.HealthAddr, "extra plain-HTTP listener for /healthz and /readyz only (no TLS, no token); empty disables")
+	fs.StringVar(&c.TLSCertFile, "tls-cert", "", "PEM certificate file; with -tls-key turns on TLS for gRPC and HTTP (metrics and health listeners stay plain)")
 	fs.StringVar(&c.TLSKeyFile, "tls-key", "", "PEM private key file for -tls-cert")
-	fs.BoolVar(&c.Reflection, "reflection", c.Reflection, "register gRPC server reflection")
+	fs.StringVar(&c.TLSClientCAFile, "tls-client-ca", "", "PEM file of client CAs: turns on mutual TLS (clients must present a certificate signed by one); needs -tls-cert")
+	fs.StringVar(&c.TokenFile, "token-file", "", "file of bearer token SHA-256 hashes (lines: SHA256HEX [NAME [RATE/s [BURST]]]); turns on token auth for everything but /healthz, /readyz and gRPC health")
+	fs.BoolVar(&f.hashToken, "hash-token", false, "read a token on stdin, print its SHA-256 for the token file, and exit")
+	fs.BoolVar(&c.Production, "production", c.Production, "production mode: requires TLS and turns reflection off (an explicit -reflection=true is an error)")
+	fs.BoolVar(&c.Reflection, "reflection", c.Reflection, "register gRPC server reflection (default off with -production)")
 	fs.Var((*byteSize)(&c.MaxRecvMsgBytes), "max-recv-bytes", "largest gRPC message or HTTP body accepted (gRPC RESOURCE_EXHAUSTED, HTTP 413 beyond)")
 	fs.Var((*byteSize)(&c.MaxSendMsgBytes), "max-send-bytes", "largest gRPC message sent")
 	fs.IntVar(&c.MaxConcurrentRequests, "max-requests", c.MaxConcurrentRequests, "analyses running at once, gRPC and HTTP together; more are refused at once with RESOURCE_EXHAUSTED / 429")
@@ -104,7 +144,7 @@ func parseServe(args []string, lookupEnv func(string) (string, bool), stderr io.
 	fs.VisitAll(func(fl *flag.Flag) { names = append(names, fl.Name) })
 	sort.Strings(names)
 	for _, name := range names {
-		if given[name] {
+		if given[name] || name == "hash-token" {
 			continue
 		}
 		v, ok := lookupEnv(envName(name))
@@ -114,6 +154,16 @@ func parseServe(args []string, lookupEnv func(string) (string, bool), stderr io.
 		if err := fs.Set(name, v); err != nil {
 			return nil, usagef("%s=%q: %v", envName(name), v, err)
 		}
+	}
+	// Production mode turns reflection off unless it was asked for, which
+	// Validate then refuses.
+	if f.cfg.Production && !given["reflection"] {
+		if _, set := lookupEnv(envName("reflection")); !set {
+			f.cfg.Reflection = false
+		}
+	}
+	if f.hashToken {
+		return nil, usagef("-hash-token: give it as -hash-token, alone")
 	}
 	if err := f.cfg.Validate(); err != nil {
 		return nil, usagef("%v", err)

@@ -20,8 +20,8 @@ func SegmentName(s kinchainv1.Segment) string {
 	return strings.ToLower(strings.TrimPrefix(name, "SEGMENT_"))
 }
 
-// segmentLabel is the human form of a segment name ("lead upper arm").
-func segmentLabel(s kinchainv1.Segment) string {
+// SegmentLabel is the human form of a segment name ("lead upper arm").
+func SegmentLabel(s kinchainv1.Segment) string {
 	return strings.ReplaceAll(SegmentName(s), "_", " ")
 }
 
@@ -84,7 +84,7 @@ func WriteText(w io.Writer, r *kinchainv1.AnalyzeCaptureResponse) error {
 		if s.GetCutoffHz() > 0 {
 			cut = fmt.Sprintf("%.1f", s.GetCutoffHz())
 		}
-		fmt.Fprintf(t, "  %s\t%.1f\t%s\t%.1f\t%.3f\t\n", segmentLabel(s.GetSegment()), s.GetSampleRateHz(), cut, s.GetPeakSpeedDegPerS(), s.GetPeakTimeS())
+		fmt.Fprintf(t, "  %s\t%.1f\t%s\t%.1f\t%.3f\t\n", SegmentLabel(s.GetSegment()), s.GetSampleRateHz(), cut, s.GetPeakSpeedDegPerS(), s.GetPeakTimeS())
 	}
 	p.flush(t)
 
@@ -128,13 +128,13 @@ func writeSwing(p *printer, sw *kinchainv1.SwingReport, n int) {
 		t = p.table()
 		fmt.Fprintln(t, "    segment\tpeak deg/s\tpeak s\tfrom impact ms\tat impact deg/s\tdrop to impact %\t")
 		for _, s := range sw.GetSequence() {
-			fmt.Fprintf(t, "    %s\t%.1f\t%.3f\t%+.0f\t%.1f\t%.1f\t\n", segmentLabel(s.GetSegment()), s.GetPeakSpeedDegPerS(),
+			fmt.Fprintf(t, "    %s\t%.1f\t%.3f\t%+.0f\t%.1f\t%.1f\t\n", SegmentLabel(s.GetSegment()), s.GetPeakSpeedDegPerS(),
 				s.GetPeakTimeS(), s.GetTimeFromImpactMs(), s.GetSpeedAtImpactDegPerS(), s.GetDecelerationPct())
 		}
 		p.flush(t)
 		order := make([]string, len(sw.GetPeakOrder()))
 		for i, s := range sw.GetPeakOrder() {
-			order[i] = segmentLabel(s)
+			order[i] = SegmentLabel(s)
 		}
 		verdict := "no"
 		if sw.GetProximalToDistal() {
@@ -147,7 +147,7 @@ func writeSwing(p *printer, sw *kinchainv1.SwingReport, n int) {
 		t = p.table()
 		fmt.Fprintln(t, "    link\tratio\tgap deg/s\t")
 		for _, g := range sw.GetGains() {
-			fmt.Fprintf(t, "    %s → %s\t×%.2f\t%+.1f\t\n", segmentLabel(g.GetProximal()), segmentLabel(g.GetDistal()), g.GetRatio(), g.GetGapDegPerS())
+			fmt.Fprintf(t, "    %s → %s\t×%.2f\t%+.1f\t\n", SegmentLabel(g.GetProximal()), SegmentLabel(g.GetDistal()), g.GetRatio(), g.GetGapDegPerS())
 		}
 		p.flush(t)
 	}
@@ -156,7 +156,7 @@ func writeSwing(p *printer, sw *kinchainv1.SwingReport, n int) {
 		t = p.table()
 		fmt.Fprintln(t, "    segment\ttime s\tfrom top ms\t")
 		for _, tr := range sw.GetTransitions() {
-			fmt.Fprintf(t, "    %s\t%.3f\t%+.0f\t\n", segmentLabel(tr.GetSegment()), tr.GetTimeS(), tr.GetTimeFromTopMs())
+			fmt.Fprintf(t, "    %s\t%.3f\t%+.0f\t\n", SegmentLabel(tr.GetSegment()), tr.GetTimeS(), tr.GetTimeFromTopMs())
 		}
 		p.flush(t)
 	}
@@ -259,7 +259,7 @@ func writeQuality(p *printer, q *kinchainv1.Quality) {
 		if tr.GetFused() {
 			src = "fused IMU"
 		}
-		fmt.Fprintf(t, "  %s\t%d\t%.1f\t%.3f\t%d\t%.1f\t%d\t%d\t%s\t\n", segmentLabel(tr.GetSegment()), tr.GetSamples(),
+		fmt.Fprintf(t, "  %s\t%d\t%.1f\t%.3f\t%d\t%.1f\t%d\t%d\t%s\t\n", SegmentLabel(tr.GetSegment()), tr.GetSamples(),
 			tr.GetEffectiveRateHz(), tr.GetJitterMs(), tr.GetGaps(), tr.GetLongestGapMs(), tr.GetRenormalizedSamples(), tr.GetHemisphereFlips(), src)
 	}
 	p.flush(t)
@@ -271,7 +271,7 @@ func writeQuality(p *printer, q *kinchainv1.Quality) {
 	for _, w := range q.GetWarnings() {
 		code := strings.ToLower(strings.TrimPrefix(w.GetCode().String(), "WARNING_CODE_"))
 		where := ""
-		if s := segmentLabel(w.GetSegment()); s != "" {
+		if s := SegmentLabel(w.GetSegment()); s != "" {
 			where = " [" + s + "]"
 		}
 		if w.TimeS != nil {

@@ -303,28 +303,48 @@ func Track(t *capture.Track, opt Options) (Report, error) {
 // samples at common rates (common practice, no source).
 const minPrimeSpan = 0.1
 
+// stillBlock is the span over which readings are averaged before the rest
+// test of stillPrefix, s: white sensor noise shrinks by √(samples) in the
+// average, so a noisy but still sensor passes while a movement of more than
+// a few milliseconds still breaks the prefix (common practice, no source).
+const stillBlock = 0.01
+
 // stillPrefix returns the number k of samples at the start of t, spanning
-// at most TauAcc seconds, that are still by VQF's rest criteria: each
-// gyroscope and accelerometer reading within RestThGyr and RestThAcc of the
-// running mean of the samples before it, and the mean gyroscope reading
-// within BiasClip per axis. It also returns the mean readings of those k
-// samples.
+// at most TauAcc seconds, that are still by VQF's rest criteria applied to
+// block means: the mean gyroscope and accelerometer reading of each block of
+// stillBlock seconds lies within RestThGyr and RestThAcc of the running mean
+// of the samples before it, and the running gyroscope mean within BiasClip
+// per axis. Testing block means rather than single readings keeps sensor
+// noise from ending the prefix (VQF itself low-passes before its rest test).
+// It also returns the mean readings of those k samples.
 func stillPrefix(t *capture.Track, useMag bool, p Params) (k int, g, a, m r3.Vec) {
+	n := len(t.Time)
+	block := 1
+	if n > 1 {
+		dt := (t.Time[n-1] - t.Time[0]) / float64(n-1)
+		block = max(1, int(math.Round(stillBlock/dt)))
+	}
 	var sg, sa, sm r3.Vec
-	for k = 0; k < len(t.Time) && t.Time[k]-t.Time[0] <= p.TauAcc; k++ {
+	for k < n && t.Time[k]-t.Time[0] <= p.TauAcc {
+		end := min(k+block, n)
+		var bg, ba, bm r3.Vec
+		for i := k; i < end; i++ {
+			bg = r3.Add(bg, t.Gyro[i])
+			ba = r3.Add(ba, t.Accel[i])
+			if useMag {
+				bm = r3.Add(bm, t.Mag[i])
+			}
+		}
 		if k > 0 {
-			inv := 1 / float64(k)
+			inv, binv := 1/float64(k), 1/float64(end-k)
 			mg, ma := r3.Scale(inv, sg), r3.Scale(inv, sa)
-			if r3.Norm(r3.Sub(t.Gyro[k], mg)) >= p.RestThGyr || r3.Norm(r3.Sub(t.Accel[k], ma)) >= p.RestThAcc ||
+			if r3.Norm(r3.Sub(r3.Scale(binv, bg), mg)) >= p.RestThGyr || r3.Norm(r3.Sub(r3.Scale(binv, ba), ma)) >= p.RestThAcc ||
 				math.Abs(mg.X) > p.BiasClip || math.Abs(mg.Y) > p.BiasClip || math.Abs(mg.Z) > p.BiasClip {
 				break
 			}
 		}
-		sg = r3.Add(sg, t.Gyro[k])
-		sa = r3.Add(sa, t.Accel[k])
-		if useMag {
-			sm = r3.Add(sm, t.Mag[k])
-		}
+		sg, sa, sm = r3.Add(sg, bg), r3.Add(sa, ba), r3.Add(sm, bm)
+		k = end
 	}
 	if k == 0 {
 		return 0, g, a, m

@@ -337,7 +337,7 @@ func TestHostileText(t *testing.T) {
 	d := parseSVG(t, b)
 	found := false
 	for _, tx := range d.Texts {
-		if strings.HasPrefix(tx.Content, "Swing 0 · badid[31m <&> long-") && strings.HasSuffix(tx.Content, "…") {
+		if strings.HasPrefix(tx.Content, "Swing 1 of 1 · badid[31m <&> long-") && strings.HasSuffix(tx.Content, "…") {
 			found = true
 		}
 	}

@@ -14,6 +14,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/encode"
 )
 
 // The colours of the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal
@@ -97,32 +98,12 @@ func (s segmentStyle) lines() []draw.LineStyle {
 	return []draw.LineStyle{{Color: s.Color, Width: lineWidth, Dashes: s.Dashes}}
 }
 
-// segmentName is the display name of a segment: "lead upper arm".
-func segmentName(s kinchainv1.Segment) string {
-	n := strings.TrimPrefix(s.String(), "SEGMENT_")
-	return strings.ReplaceAll(strings.ToLower(n), "_", " ")
-}
+// segmentName is the display name of a segment: "lead upper arm", as in
+// the text report.
+func segmentName(s kinchainv1.Segment) string { return encode.SegmentLabel(s) }
 
-// eventName is the display name of an event kind.
-func eventName(k kinchainv1.EventKind) string {
-	switch k {
-	case kinchainv1.EventKind_EVENT_KIND_ADDRESS:
-		return "address"
-	case kinchainv1.EventKind_EVENT_KIND_TAKEAWAY:
-		return "takeaway"
-	case kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_BACKSWING:
-		return "lead arm level (back)"
-	case kinchainv1.EventKind_EVENT_KIND_TOP:
-		return "top"
-	case kinchainv1.EventKind_EVENT_KIND_LEAD_ARM_LEVEL_DOWNSWING:
-		return "lead arm level (down)"
-	case kinchainv1.EventKind_EVENT_KIND_IMPACT:
-		return "impact"
-	case kinchainv1.EventKind_EVENT_KIND_FINISH:
-		return "finish"
-	}
-	return strings.ToLower(strings.TrimPrefix(k.String(), "EVENT_KIND_"))
-}
+// eventName is the display name of an event kind, as in the text report.
+func eventName(k kinchainv1.EventKind) string { return encode.EventLabel(k) }
 
 // Type sizes, pt.
 const (

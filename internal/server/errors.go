@@ -40,6 +40,12 @@ const (
 	scopeHeader
 	// scopeBatch: a SampleBatch; paths get "batch." in front.
 	scopeBatch
+	// scopeStream: a StreamCaptureRequest; paths stay ("message").
+	scopeStream
+	// scopeBody: decoding errors of a request body whose paths are
+	// already relative to the request (decode.JSONRequest,
+	// decodeAnalyzeRequest); they stay, a path-less error names "body".
+	scopeBody
 )
 
 // path turns a validator's field path into one relative to the scope's
@@ -57,6 +63,16 @@ func (sc scope) path(field string) string {
 	case scopeCSV:
 		if field == "" {
 			return "body"
+		}
+		return field
+	case scopeBody:
+		if field == "" {
+			return "body"
+		}
+		return field
+	case scopeStream:
+		if field == "" {
+			return "message"
 		}
 		return field
 	case scopeHeader:

@@ -1,7 +1,6 @@
 package server
 
 import (
-	"bufio"
 	"bytes"
 	"context"
 	"errors"
@@ -23,6 +22,9 @@ import (
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/api/openapi"
+	"github.com/kinchain/kinchain/internal/decode"
+	"github.com/kinchain/kinchain/internal/httpbody"
+	"github.com/kinchain/kinchain/internal/validate"
 )
 
 // Routes of the HTTP listener (the route label of the HTTP metrics).
@@ -53,15 +55,25 @@ type protoJSON struct{ runtime.JSONPb }
 // an empty body is io.EOF (an empty request, as the gateway expects).
 func (m *protoJSON) NewDecoder(r io.Reader) runtime.Decoder {
 	return runtime.DecoderFunc(func(v any) error {
-		b, err := io.ReadAll(r)
-		if err != nil {
-			return err
+		jb, _ := r.(*jsonBody)
+		var b []byte
+		if jb != nil {
+			b = jb.b
+		} else {
+			var err error
+			if b, err = io.ReadAll(r); err != nil {
+				return err
+			}
 		}
 		if len(bytes.TrimSpace(b)) == 0 {
 			return io.EOF
 		}
 		if req, ok := v.(*kinchainv1.AnalyzeCaptureRequest); ok {
-			return decodeRequestJSON(b, m.UnmarshalOptions, req)
+			err := decodeRequestChecked(b, m.UnmarshalOptions, req)
+			if err != nil && jb != nil {
+				jb.err = err
+			}
+			return err
 		}
 		pm, ok := v.(proto.Message)
 		if !ok {
@@ -69,6 +81,69 @@ func (m *protoJSON) NewDecoder(r io.Reader) runtime.Decoder {
 		}
 		return m.UnmarshalOptions.Unmarshal(b, pm)
 	})
+}
+
+// jsonBody is an analyze request's JSON body, read whole by analyzeHTTP
+// and handed to the gateway. The decoder reads it without copying and
+// leaves the typed decoding error here, where gatewayError finds it
+// (the generated gateway code keeps only the error's text).
+type jsonBody struct {
+	b   []byte
+	r   *bytes.Reader
+	err error
+}
+
+func (j *jsonBody) Read(p []byte) (int, error) { return j.r.Read(p) }
+func (j *jsonBody) Close() error               { return nil }
+
+type jsonBodyKey struct{}
+
+// decodeRequestChecked decodes an AnalyzeCaptureRequest from protojson b
+// with the fast path (fastjson.go). Two checks come from decode's JSON
+// reader (decode.JSONRequest): a body with more objects than a capture
+// within the default limits can hold is walked first, so that many small
+// tracks are refused (too_large) before they are allocated; and when
+// decoding fails, the error is decode's *validate.Error naming the field,
+// sample and line (capture.tracks[0].qw, line 12) instead of protojson's
+// text.
+func decodeRequestChecked(b []byte, opts protojson.UnmarshalOptions, req *kinchainv1.AnalyzeCaptureRequest) error {
+	if bytes.Count(b, []byte("{")) > 4*validate.DefaultMaxTracks+16 {
+		if _, err := decode.JSONRequest(b); err != nil {
+			return err
+		}
+	}
+	err := decodeRequestJSON(b, opts, req)
+	if err == nil {
+		return nil
+	}
+	if _, derr := decode.JSONRequest(b); derr != nil {
+		return derr
+	}
+	return err
+}
+
+// captureFields are the proto and JSON names of Capture's fields.
+var captureFields = func() map[string]bool {
+	m := map[string]bool{}
+	fs := (&kinchainv1.Capture{}).ProtoReflect().Descriptor().Fields()
+	for i := 0; i < fs.Len(); i++ {
+		m[string(fs.Get(i).Name())], m[fs.Get(i).JSONName()] = true, true
+	}
+	return m
+}()
+
+// bareCapture reports whether JSON b is a Capture sent without the request
+// around it: an object whose first member is a Capture field (capture_id,
+// tracks, …; AnalyzeCaptureRequest has none of these). Only the first key
+// is looked at, so a truncated or otherwise broken capture is still read
+// as a capture and its error named inside it.
+func bareCapture(b []byte) bool {
+	i := skipSpace(b, 0)
+	if i >= len(b) || b[i] != '{' {
+		return false
+	}
+	k, _, ok := plainKey(b, skipSpace(b, i+1))
+	return ok && captureFields[k]
 }
 
 // newHTTPHandler builds the HTTP listener's mux: the gateway (registered
@@ -92,20 +167,32 @@ func (s *Server) newHTTPHandler() error {
 		w.Header().Set("Content-Type", "application/json")
 		_, _ = w.Write(openapi.JSON)
 	}))
-	s.handle(http.MethodGet, routeHealthz, false, http.HandlerFunc(func(w http.ResponseWriter, _ *http.Request) {
-		writeJSON(w, http.StatusOK, `{"status":"alive"}`)
-	}))
-	s.handle(http.MethodGet, routeReadyz, false, http.HandlerFunc(func(w http.ResponseWriter, _ *http.Request) {
-		if s.ready.Load() {
-			writeJSON(w, http.StatusOK, `{"status":"ready"}`)
-			return
-		}
-		writeJSON(w, http.StatusServiceUnavailable, `{"status":"not ready"}`)
-	}))
+	s.handle(http.MethodGet, routeHealthz, false, http.HandlerFunc(s.healthz))
+	s.handle(http.MethodGet, routeReadyz, false, http.HandlerFunc(s.readyz))
 	s.httpMux.Handle("/", s.route(routeOther, false, http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		s.WriteHTTPError(w, r, status.Errorf(codes.NotFound, "no route for %s %s", r.Method, r.URL.Path))
 	})))
 	return nil
+}
+
+// healthMux is the health listener's handler: the two probes only.
+func (s *Server) healthMux() http.Handler {
+	mux := http.NewServeMux()
+	mux.Handle("GET "+routeHealthz, s.route(routeHealthz, false, http.HandlerFunc(s.healthz)))
+	mux.Handle("GET "+routeReadyz, s.route(routeReadyz, false, http.HandlerFunc(s.readyz)))
+	return mux
+}
+
+func (s *Server) healthz(w http.ResponseWriter, _ *http.Request) {
+	writeJSON(w, http.StatusOK, `{"status":"alive"}`)
+}
+
+func (s *Server) readyz(w http.ResponseWriter, _ *http.Request) {
+	if s.ready.Load() {
+		writeJSON(w, http.StatusOK, `{"status":"ready"}`)
+		return
+	}
+	writeJSON(w, http.StatusServiceUnavailable, `{"status":"not ready"}`)
 }
 
 // handle registers h for method and path with the route middleware, and
@@ -151,61 +238,76 @@ type bodyKind int
 const (
 	bodyJSON bodyKind = iota
 	bodyCSV
+	bodyProto
 	bodyUnsupported
 )
 
-// classify decides the body kind from Content-Type, sniffing the first
-// non-space byte ('{' is JSON, anything else CSV) when the type says
-// nothing useful (none, application/octet-stream as curl -T sends it,
-// application/x-www-form-urlencoded as curl -d sends it, text/plain).
-func classify(r *http.Request) (bodyKind, *http.Request) {
-	ct := r.Header.Get("Content-Type")
-	mt := ""
-	if ct != "" {
-		if m, _, err := mime.ParseMediaType(ct); err == nil {
-			mt = m
-		} else {
-			return bodyUnsupported, r
-		}
+// protoRequestType is the value of a protobuf Content-Type's proto= (or
+// messageType=) parameter that marks the body as a whole
+// AnalyzeCaptureRequest; without it the body is a Capture.
+const protoRequestType = "kinchain.v1.AnalyzeCaptureRequest"
+
+// isProtoType reports whether a media type names binary protobuf.
+func isProtoType(mt string) bool {
+	switch mt {
+	case "application/x-protobuf", "application/protobuf", "application/vnd.google.protobuf", "application/x-protobuffer":
+		return true
 	}
-	switch {
-	case mt == "text/csv" || mt == "application/csv":
+	return false
+}
+
+// classify decides the body kind: binary protobuf for the protobuf media
+// types (isProtoType), otherwise as internal/httpbody decides for every
+// route taking a capture (CSV or JSON by Content-Type, sniffing the first
+// non-space byte when the type says nothing useful: '{' is JSON, anything
+// else CSV).
+func classify(r *http.Request) (bodyKind, *http.Request) {
+	if mt, _, err := mime.ParseMediaType(r.Header.Get("Content-Type")); err == nil && isProtoType(mt) {
+		return bodyProto, r
+	}
+	k, r := httpbody.Classify(r)
+	switch k {
+	case httpbody.CSV:
 		return bodyCSV, r
-	case mt == "application/json" || strings.HasSuffix(mt, "+json"):
+	case httpbody.JSON:
 		return bodyJSON, r
-	case mt == "" || mt == "application/octet-stream" || mt == "application/x-www-form-urlencoded" || mt == "text/plain":
-		br := bufio.NewReaderSize(r.Body, 512)
-		r2 := r.Clone(r.Context())
-		r2.Body = struct {
-			io.Reader
-			io.Closer
-		}{br, r.Body}
-		kind := bodyCSV
-		b, _ := br.Peek(512) // fewer bytes at EOF; errors surface on reading
-		if t := strings.TrimLeft(string(b), " \t\r\n"); strings.HasPrefix(t, "{") {
-			kind = bodyJSON
-		}
-		return kind, r2
 	}
 	return bodyUnsupported, r
 }
 
 // analyzeHTTP serves POST and PUT /v1/captures:analyze: protojson bodies
-// go to the gateway, CSV bodies to Analyzer.AnalyzeCSV with options from the
-// query.
+// go to the gateway (a bare Capture is wrapped into a request first), CSV
+// bodies to Analyzer.AnalyzeCSV with options from the query, binary
+// protobuf bodies to analyzeProto.
 func (s *Server) analyzeHTTP(w http.ResponseWriter, r *http.Request) {
 	kind, r := classify(r)
 	switch kind {
 	case bodyCSV:
 		s.analyzeCSV(w, r)
+	case bodyProto:
+		s.analyzeProto(w, r)
 	case bodyJSON:
 		if len(r.URL.RawQuery) > 0 {
 			s.WriteHTTPError(w, r, fieldViolation("query", "QUERY_WITH_JSON",
-				"query parameters apply to CSV bodies only; put options in the JSON body's \"options\""))
+				"query parameters apply to CSV and protobuf Capture bodies only; put options in the JSON body's \"options\""))
 			return
 		}
+		b, err := io.ReadAll(r.Body)
+		if err != nil {
+			s.WriteHTTPError(w, r, s.bodyReadError(r, err))
+			return
+		}
+		if bareCapture(b) {
+			// {"capture": …} on the same line keeps decode's line numbers.
+			wrapped := make([]byte, 0, len(b)+12)
+			wrapped = append(append(append(wrapped, `{"capture":`...), b...), '}')
+			b = wrapped
+		}
+		jb := &jsonBody{b: b, r: bytes.NewReader(b)}
+		r = r.Clone(context.WithValue(r.Context(), jsonBodyKey{}, jb))
+		r.Body = jb
+		r.ContentLength = int64(len(b))
 		if r.Method != http.MethodPost {
-			r = r.Clone(r.Context())
 			r.Method = http.MethodPost
 		}
 		if r.Header.Get("Content-Type") == "" || !strings.Contains(r.Header.Get("Content-Type"), "json") {
@@ -216,7 +318,7 @@ func (s *Server) analyzeHTTP(w http.ResponseWriter, r *http.Request) {
 		s.WriteHTTPError(w, r, &runtime.HTTPStatusError{
 			HTTPStatus: http.StatusUnsupportedMediaType,
 			Err: fieldViolation("Content-Type", "UNSUPPORTED_MEDIA_TYPE",
-				"%q is not accepted; send application/json (AnalyzeCaptureRequest) or text/csv (a capture)", r.Header.Get("Content-Type")),
+				"%q is not accepted; send application/json (AnalyzeCaptureRequest or Capture), text/csv (a capture) or application/x-protobuf (a Capture, or with proto=%s a request)", r.Header.Get("Content-Type"), protoRequestType),
 		})
 	}
 }
@@ -243,6 +345,90 @@ func (s *Server) analyzeCSV(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Content-Type", "application/json")
 	w.WriteHeader(http.StatusOK)
 	_, _ = w.Write(b)
+}
+
+// bodyReadError is the error for a body that could not be read: 413
+// past the limit (gatewayError sees the overflow), else 400 naming body.
+func (s *Server) bodyReadError(r *http.Request, err error) error {
+	if ctxErr := r.Context().Err(); ctxErr != nil {
+		return s.toStatus(r.Context(), ctxErr, scopeBody)
+	}
+	return fieldViolation("body", "UNREADABLE_BODY", "reading the request body: %v", err)
+}
+
+// analyzeProto analyses a binary protobuf body: a Capture with options from
+// the query, or, when the Content-Type says proto=kinchain.v1.AnalyzeCaptureRequest
+// (or messageType=…), a whole request. Both are read by decode's hardened
+// protobuf reader (decodeAnalyzeRequest), so errors name the field
+// (capture.tracks[0].qz[11]) as over gRPC. The answer is protojson, or
+// binary protobuf when the Accept header asks for a protobuf type.
+func (s *Server) analyzeProto(w http.ResponseWriter, r *http.Request) {
+	ctx := r.Context()
+	_, params, _ := mime.ParseMediaType(r.Header.Get("Content-Type"))
+	whole := params["proto"] == protoRequestType || params["messagetype"] == protoRequestType
+	var opts *kinchainv1.AnalysisOptions
+	if whole {
+		if len(r.URL.RawQuery) > 0 {
+			s.WriteHTTPError(w, r, fieldViolation("query", "QUERY_WITH_REQUEST",
+				"query parameters apply to Capture bodies only; put options in the request's options field"))
+			return
+		}
+	} else {
+		var err error
+		if opts, err = QueryOptions(r.URL.Query()); err != nil {
+			s.WriteHTTPError(w, r, err)
+			return
+		}
+	}
+	b, err := io.ReadAll(r.Body)
+	if err != nil {
+		s.WriteHTTPError(w, r, s.bodyReadError(r, err))
+		return
+	}
+	var req *kinchainv1.AnalyzeCaptureRequest
+	if whole {
+		req, err = decodeAnalyzeRequest(b, s.lim)
+	} else {
+		var pc *kinchainv1.Capture
+		if pc, err = decodeCapturePB(b, s.lim); err == nil {
+			req = &kinchainv1.AnalyzeCaptureRequest{Capture: pc, Options: opts}
+		}
+	}
+	b = nil
+	if err != nil {
+		s.WriteHTTPError(w, r, s.toStatus(ctx, err, scopeBody))
+		return
+	}
+	resp, err := s.svc.AnalyzeCapture(ctx, req)
+	if err != nil {
+		s.WriteHTTPError(w, r, err)
+		return
+	}
+	var out []byte
+	ct := "application/json"
+	if accept := r.Header.Get("Accept"); acceptsProto(accept) {
+		ct = "application/x-protobuf"
+		out, err = proto.Marshal(resp)
+	} else {
+		out, err = gatewayMarshaler.Marshal(resp)
+	}
+	if err != nil {
+		s.WriteHTTPError(w, r, s.toStatus(ctx, err, scopeBody))
+		return
+	}
+	w.Header().Set("Content-Type", ct)
+	w.WriteHeader(http.StatusOK)
+	_, _ = w.Write(out)
+}
+
+// acceptsProto reports whether an Accept header lists a protobuf type.
+func acceptsProto(accept string) bool {
+	for _, part := range strings.Split(accept, ",") {
+		if mt, _, err := mime.ParseMediaType(strings.TrimSpace(part)); err == nil && isProtoType(mt) {
+			return true
+		}
+	}
+	return false
 }
 
 // WriteHTTPError writes err as the gateway does: a google.rpc.Status in
@@ -274,6 +460,15 @@ func (s *Server) gatewayError(ctx context.Context, mux *runtime.ServeMux, m runt
 		inner = hs.Err
 	}
 	st := status.Convert(inner)
+	if jb, _ := ctx.Value(jsonBodyKey{}).(*jsonBody); jb != nil && jb.err != nil && st.Code() == codes.InvalidArgument && len(st.Details()) == 0 {
+		// The body did not decode: answer with decode's field violation.
+		derr := jb.err
+		jb.err = nil
+		if len(validationErrors(derr)) > 0 {
+			inner = s.toStatus(ctx, derr, scopeBody)
+			err, st = inner, status.Convert(inner)
+		}
+	}
 	if st.Code() == codes.InvalidArgument && len(st.Details()) == 0 {
 		inner = withDetails(codes.InvalidArgument, st.Message(), &errdetails.BadRequest{
 			FieldViolations: []*errdetails.BadRequest_FieldViolation{{Field: "body", Description: st.Message(), Reason: "MALFORMED_BODY"}},
@@ -286,7 +481,15 @@ func (s *Server) gatewayError(ctx context.Context, mux *runtime.ServeMux, m runt
 	}
 	switch st.Code() {
 	case codes.ResourceExhausted, codes.Unavailable:
-		w.Header().Set("Retry-After", strconv.Itoa(int(retryAfter/time.Second)))
+		retry := retryAfter
+		for _, d := range st.Details() {
+			if ri, ok := d.(*errdetails.RetryInfo); ok && ri.GetRetryDelay().AsDuration() > retry {
+				retry = ri.GetRetryDelay().AsDuration()
+			}
+		}
+		w.Header().Set("Retry-After", strconv.Itoa(int((retry+time.Second-1)/time.Second)))
+	case codes.Unauthenticated:
+		w.Header().Set("WWW-Authenticate", `Bearer realm="kinchain"`)
 	}
 	runtime.DefaultHTTPErrorHandler(ctx, mux, m, w, r, err)
 }
@@ -349,11 +552,17 @@ func (r *statusRecorder) Write(b []byte) (int, error) {
 // Unwrap lets http.ResponseController reach the connection.
 func (r *statusRecorder) Unwrap() http.ResponseWriter { return r.ResponseWriter }
 
+// responseWriteGrace is how long past a request's deadline its answer may
+// take to write.
+const responseWriteGrace = 10 * time.Second
+
 // route wraps an HTTP handler with the server's middleware: request id
-// (X-Request-Id taken or generated, echoed), body limit (413), panic
-// recovery (500, counted), metrics and one log line per request. limited
-// routes also take a concurrent-requests slot (429 when none is free), get
-// the default deadline and a read deadline for the body.
+// (X-Request-Id taken or generated, echoed), bearer token and rate limit
+// when tokens are configured (all routes but the probes; 401 / 429), body
+// limit (413), panic recovery (500, counted), metrics and one log line per
+// request. limited routes also take a concurrent-requests slot (429 when
+// none is free), get the default deadline, a read deadline for the body and
+// a write deadline for the answer.
 func (s *Server) route(route string, limited bool, h http.Handler) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		start := time.Now()
@@ -366,6 +575,7 @@ func (s *Server) route(route string, limited bool, h http.Handler) http.Handler 
 		r = r.WithContext(ctx)
 		r.Body = lb
 		s.metrics.inFlight.WithLabelValues(transportHTTP).Inc()
+		principal := ""
 
 		defer func() {
 			if p := recover(); p != nil {
@@ -396,16 +606,29 @@ func (s *Server) route(route string, limited bool, h http.Handler) http.Handler 
 			if route == routeHealthz || route == routeReadyz {
 				lvl = slog.LevelDebug // probes every few seconds would drown the log
 			}
-			s.log.LogAttrs(ctx, lvl, "finished http request",
-				slog.String("request_id", id),
+			attrs := []slog.Attr{slog.String("request_id", id)}
+			if principal != "" {
+				attrs = append(attrs, slog.String("auth.token", principal))
+			}
+			s.log.LogAttrs(ctx, lvl, "finished http request", append(attrs,
 				slog.String("http.method", r.Method),
 				slog.String("http.route", route),
 				slog.Int("http.status", code),
 				slog.Int64("http.request_bytes", lb.n.Load()),
 				slog.String("peer.address", r.RemoteAddr),
-				slog.Float64("duration_ms", float64(d.Microseconds())/1000))
+				slog.Float64("duration_ms", float64(d.Microseconds())/1000))...)
 		}()
 
+		if s.tokens != nil && route != routeHealthz && route != routeReadyz {
+			actx, err := s.authorize(ctx, transportHTTP, r.Header.Get("Authorization"))
+			if err != nil {
+				s.WriteHTTPError(rec, r, err)
+				return
+			}
+			ctx = actx
+			principal = principalFrom(ctx)
+			r = r.WithContext(ctx)
+		}
 		if r.ContentLength > int64(s.cfg.MaxRecvMsgBytes) {
 			s.metrics.rejected.WithLabelValues(limitBody).Inc()
 			s.WriteHTTPError(rec, r, &runtime.HTTPStatusError{HTTPStatus: http.StatusRequestEntityTooLarge,
@@ -425,7 +648,11 @@ func (s *Server) route(route string, limited bool, h http.Handler) http.Handler 
 				r = r.WithContext(ctx)
 			}
 			dl, _ := ctx.Deadline()
-			_ = http.NewResponseController(rec).SetReadDeadline(dl)
+			rc := http.NewResponseController(rec)
+			_ = rc.SetReadDeadline(dl)
+			// A client that does not read the answer cannot hold the slot
+			// and the handler past the deadline plus responseWriteGrace.
+			_ = rc.SetWriteDeadline(dl.Add(responseWriteGrace))
 		}
 		h.ServeHTTP(rec, r)
 	})

@@ -148,8 +148,9 @@ func TestGatewayBadRequests(t *testing.T) {
 		field                       string
 	}{
 		{"validation JSON", "POST", analyze, "application/json", string(bad), 400, "capture.tracks[0].qw[4]"},
-		{"malformed JSON", "POST", analyze, "application/json", `{"capture": {"tracks": 7}}`, 400, "body"},
-		{"unknown JSON field", "POST", analyze, "application/json", `{"capture": {"capture_id": "x"}, "nope": 1}`, 400, "body"},
+		{"malformed JSON", "POST", analyze, "application/json", `{"capture": {"tracks": 7}}`, 400, "capture.tracks"},
+		{"unknown JSON field", "POST", analyze, "application/json", `{"capture": {"capture_id": "x"}, "nope": 1}`, 400, "nope"},
+		{"JSON syntax", "POST", analyze, "application/json", `{"capture": {"capture_id": "x"`, 400, "capture"},
 		{"malformed CSV", "POST", analyze, "text/csv", badCSV, 400, ""},
 		{"unknown query parameter", "POST", analyze + "?cutof_hz=3", "text/csv", goodCSV("q", 20), 400, "cutof_hz"},
 		{"bad query value", "POST", analyze + "?speed=sideways", "text/csv", goodCSV("q", 20), 400, "speed"},

@@ -85,7 +85,7 @@ func incomingRequestID(ctx context.Context) string {
 // call and so stops the client's retry policy from retrying UNAVAILABLE.)
 func unaryRequestID(ctx context.Context, req any, _ *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (any, error) {
 	id := incomingRequestID(ctx)
-	ctx = logging.InjectFields(withRequestID(ctx, id), logging.Fields{"request_id", id})
+	ctx = logging.InjectFields(withRequestID(ctx, id), callFields(ctx, id))
 	resp, err := handler(ctx, req)
 	if err == nil {
 		_ = grpc.SetHeader(ctx, metadata.Pairs(requestIDKey, id))
@@ -95,11 +95,21 @@ func unaryRequestID(ctx context.Context, req any, _ *grpc.UnaryServerInfo, handl
 	return resp, err
 }
 
+// callFields are the log fields of a call: the request id and, when the
+// call was authenticated, the token's name.
+func callFields(ctx context.Context, id string) logging.Fields {
+	f := logging.Fields{"request_id", id}
+	if p := principalFrom(ctx); p != "" {
+		f = append(f, "auth.token", p)
+	}
+	return f
+}
+
 // streamRequestID is unaryRequestID for streams.
 func streamRequestID(srv any, ss grpc.ServerStream, _ *grpc.StreamServerInfo, handler grpc.StreamHandler) error {
 	id := incomingRequestID(ss.Context())
 	w := middleware.WrapServerStream(ss)
-	w.WrappedContext = logging.InjectFields(withRequestID(ss.Context(), id), logging.Fields{"request_id", id})
+	w.WrappedContext = logging.InjectFields(withRequestID(ss.Context(), id), callFields(ss.Context(), id))
 	_ = ss.SetHeader(metadata.Pairs(requestIDKey, id))
 	return handler(srv, w)
 }
@@ -190,13 +200,18 @@ func (s *Server) busyStreams() error {
 	return resourceExhausted(retryAfter, "server busy: %d streams open, the limit; retry later", cap(s.limits.streams))
 }
 
-// unaryLimit applies the concurrent-requests limit and the default
-// deadline.
+// unaryLimit releases the call's concurrency slot (taken by the tap) when
+// the handler returns, and applies the default deadline. A call that did
+// not pass the tap (none does over gRPC) takes a slot here.
 func (s *Server) unaryLimit(ctx context.Context, req any, _ *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (any, error) {
-	if !tryAcquire(s.limits.requests) {
-		return nil, s.busyRequests()
+	sl := slotFrom(ctx)
+	if sl == nil {
+		if !tryAcquire(s.limits.requests) {
+			return nil, s.busyRequests()
+		}
+		sl = &slot{pool: s.limits.requests}
 	}
-	defer func() { <-s.limits.requests }()
+	defer sl.release()
 	if _, ok := ctx.Deadline(); !ok {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, s.cfg.RequestTimeout)
@@ -205,12 +220,17 @@ func (s *Server) unaryLimit(ctx context.Context, req any, _ *grpc.UnaryServerInf
 	return handler(ctx, req)
 }
 
-// streamLimit applies the concurrent-streams limit.
+// streamLimit is unaryLimit for streams (no default deadline: streams
+// have their idle and duration limits).
 func (s *Server) streamLimit(srv any, ss grpc.ServerStream, _ *grpc.StreamServerInfo, handler grpc.StreamHandler) error {
-	if !tryAcquire(s.limits.streams) {
-		return s.busyStreams()
+	sl := slotFrom(ss.Context())
+	if sl == nil {
+		if !tryAcquire(s.limits.streams) {
+			return s.busyStreams()
+		}
+		sl = &slot{pool: s.limits.streams}
 	}
-	defer func() { <-s.limits.streams }()
+	defer sl.release()
 	return handler(srv, ss)
 }
 

@@ -23,6 +23,7 @@ import (
 	"google.golang.org/grpc/reflection"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/validate"
 )
 
 // Keepalive policy. Clients may ping every keepaliveMinTime (the client
@@ -53,6 +54,8 @@ type Server struct {
 	reg      *prometheus.Registry
 	metrics  *metrics
 	limits   *limiter
+	tokens   *tokenSet       // nil: no token authentication
+	lim      validate.Limits // the analyzer's limits, for decoding
 	svc      *service
 
 	grpc    *grpc.Server
@@ -62,8 +65,8 @@ type Server struct {
 	allowMu sync.Mutex
 	allow   map[string][]string // path → methods, for 405 answers
 
-	httpSrv, metricsSrv          *http.Server
-	grpcLis, httpLis, metricsLis net.Listener
+	httpSrv, metricsSrv, healthSrv          *http.Server
+	grpcLis, httpLis, metricsLis, healthLis net.Listener
 
 	ready    atomic.Bool
 	draining chan struct{}
@@ -72,7 +75,7 @@ type Server struct {
 
 // Addrs are the addresses a Server listens on; empty when disabled.
 type Addrs struct {
-	GRPC, HTTP, Metrics string
+	GRPC, HTTP, Metrics, Health string
 }
 
 // New builds a Server and binds its listeners, so Addrs reports the real
@@ -101,17 +104,24 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 	s := &Server{
 		cfg: cfg, log: log, analyzer: a, streams: streams, reg: reg, metrics: m,
 		limits:   newLimiter(cfg.MaxConcurrentRequests, cfg.MaxConcurrentStreams),
+		lim:      limitsOf(a),
 		draining: make(chan struct{}),
 	}
 	s.svc = &service{s: s}
-
-	var tlsCfg *tls.Config
-	if cfg.TLS() {
-		cert, err := tls.LoadX509KeyPair(cfg.TLSCertFile, cfg.TLSKeyFile)
+	if cfg.TokenFile != "" {
+		ts, err := LoadTokens(cfg.TokenFile)
 		if err != nil {
-			return nil, fmt.Errorf("server TLS: %w", err)
+			return nil, fmt.Errorf("server token file: %w", err)
 		}
-		tlsCfg = &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
+		s.tokens = newTokenSet(ts)
+		for _, t := range ts {
+			m.rateLimited.WithLabelValues(t.Name)
+		}
+	}
+
+	tlsSet, err := loadTLS(cfg)
+	if err != nil {
+		return nil, err
 	}
 
 	opts := []grpc.ServerOption{
@@ -132,12 +142,15 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 			MaxConnectionAgeGrace: cfg.MaxStreamDuration,
 		}),
 	}
-	if tlsCfg != nil {
-		opts = append(opts, grpc.Creds(credentials.NewTLS(tlsCfg.Clone())))
+	if tlsSet != nil {
+		opts = append(opts, grpc.Creds(credentials.NewTLS(tlsSet.config(m, transportGRPC))))
 	}
+	// Admission before the message is read; requests decoded by the
+	// server itself (wire.go).
+	opts = append(opts, grpc.InTapHandle(s.tap), grpc.ForceServerCodecV2(newRawCodec()))
 	opts = append(opts, s.interceptors()...)
 	s.grpc = grpc.NewServer(opts...)
-	kinchainv1.RegisterKinematicsServiceServer(s.grpc, s.svc)
+	s.grpc.RegisterService(s.serviceDesc(), s.svc)
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
 	s.health.SetServingStatus("", healthpb.HealthCheckResponse_NOT_SERVING)
@@ -152,7 +165,7 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 
 	// Bind last, closing what was bound when a later bind fails.
 	fail := func(err error) (*Server, error) {
-		for _, l := range []net.Listener{s.grpcLis, s.httpLis, s.metricsLis} {
+		for _, l := range []net.Listener{s.grpcLis, s.httpLis, s.metricsLis, s.healthLis} {
 			if l != nil {
 				_ = l.Close()
 			}
@@ -166,8 +179,8 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 		if s.httpLis, err = listen(cfg.HTTPListener, cfg.HTTPAddr, "HTTP"); err != nil {
 			return fail(err)
 		}
-		if tlsCfg != nil {
-			s.httpLis = tls.NewListener(s.httpLis, tlsCfg.Clone())
+		if tlsSet != nil {
+			s.httpLis = tls.NewListener(s.httpLis, tlsSet.config(m, transportHTTP))
 		}
 		s.httpSrv = &http.Server{
 			Handler:           s.httpMux,
@@ -188,6 +201,16 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 		}))
 		s.metricsSrv = &http.Server{
 			Handler:           mm,
+			ReadHeaderTimeout: 10 * time.Second,
+			ErrorLog:          slog.NewLogLogger(log.Handler(), slog.LevelWarn),
+		}
+	}
+	if cfg.HealthListener != nil || cfg.HealthAddr != "" {
+		if s.healthLis, err = listen(cfg.HealthListener, cfg.HealthAddr, "health"); err != nil {
+			return fail(err)
+		}
+		s.healthSrv = &http.Server{
+			Handler:           s.healthMux(),
 			ReadHeaderTimeout: 10 * time.Second,
 			ErrorLog:          slog.NewLogLogger(log.Handler(), slog.LevelWarn),
 		}
@@ -218,6 +241,9 @@ func (s *Server) Addrs() Addrs {
 	if s.metricsLis != nil {
 		a.Metrics = s.metricsLis.Addr().String()
 	}
+	if s.healthLis != nil {
+		a.Health = s.healthLis.Addr().String()
+	}
 	return a
 }
 
@@ -238,7 +264,7 @@ func (s *Server) Registry() *prometheus.Registry { return s.reg }
 //     connections, while in-flight requests run to completion;
 //  3. after Config.ShutdownGrace whatever is still running is stopped hard
 //     (connections closed);
-//  4. the metrics listener is closed last.
+//  4. the health and metrics listeners are closed last.
 //
 // Serve returns nil after a shutdown asked for by ctx, or the error of a
 // listener that failed (after shutting the rest down). It may be called
@@ -251,7 +277,7 @@ func (s *Server) Serve(ctx context.Context) error {
 		what string
 		err  error
 	}
-	errc := make(chan result, 3)
+	errc := make(chan result, 4)
 	var wg sync.WaitGroup
 	run := func(what string, f func() error) {
 		wg.Add(1)
@@ -271,11 +297,14 @@ func (s *Server) Serve(ctx context.Context) error {
 	if s.metricsSrv != nil {
 		run("metrics", func() error { return s.metricsSrv.Serve(s.metricsLis) })
 	}
+	if s.healthSrv != nil {
+		run("health", func() error { return s.healthSrv.Serve(s.healthLis) })
+	}
 	s.health.SetServingStatus("", healthpb.HealthCheckResponse_SERVING)
 	s.health.SetServingStatus(kinchainv1.KinematicsService_ServiceDesc.ServiceName, healthpb.HealthCheckResponse_SERVING)
 	s.ready.Store(true)
 	a := s.Addrs()
-	s.log.Info("serving", slog.String("grpc_addr", a.GRPC), slog.String("http_addr", a.HTTP), slog.String("metrics_addr", a.Metrics))
+	s.log.Info("serving", slog.String("grpc_addr", a.GRPC), slog.String("http_addr", a.HTTP), slog.String("metrics_addr", a.Metrics), slog.String("health_addr", a.Health))
 
 	var failed error
 	select {
@@ -338,10 +367,13 @@ func (s *Server) shutdown() {
 		}()
 	}
 	wg.Wait()
-	if s.metricsSrv != nil {
+	for _, srv := range []*http.Server{s.healthSrv, s.metricsSrv} {
+		if srv == nil {
+			continue
+		}
 		ctx, cancel := context.WithTimeout(context.Background(), time.Second)
-		if err := s.metricsSrv.Shutdown(ctx); err != nil {
-			_ = s.metricsSrv.Close()
+		if err := srv.Shutdown(ctx); err != nil {
+			_ = srv.Close()
 		}
 		cancel()
 	}

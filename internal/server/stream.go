@@ -10,6 +10,7 @@ import (
 	"google.golang.org/grpc/status"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/validate"
 )
 
 // The StreamCapture protocol, as enforced here:
@@ -19,7 +20,11 @@ import (
 //     INVALID_ARGUMENT naming "header". A bad header or batch is
 //     INVALID_ARGUMENT with the session's field violations under "header."
 //     or "batch.". These errors end the stream without a summary.
-//   - Responses returned by a Push are sent at once, in order.
+//   - A message that does not parse, or that would decode into far more
+//     memory than its size, is INVALID_ARGUMENT naming "message".
+//   - Responses returned by a Push are sent at once, in order. A client
+//     that reads none for StreamIdleTimeout while responses wait is ended
+//     with DEADLINE_EXCEEDED.
 //   - The client's half-close ends the stream normally: the session is
 //     closed, its remaining reports and summary are sent, status OK. A
 //     half-close before any header is INVALID_ARGUMENT naming "header".
@@ -33,14 +38,15 @@ import (
 //   - The client's cancellation or deadline ends the stream at once
 //     (CANCELED / DEADLINE_EXCEEDED) with nothing more sent.
 
-// recvResult is one ss.Recv outcome.
+// recvResult is one received message, decoded, or the error ending the
+// receiving.
 type recvResult struct {
 	msg *kinchainv1.StreamCaptureRequest
 	err error
 }
 
 // runStream runs one StreamCapture call. The concurrent-streams limit is
-// applied by the limits interceptor before this runs.
+// applied before this runs (admission in the tap, see admission.go).
 func (s *Server) runStream(ss kinchainv1.KinematicsService_StreamCaptureServer) error {
 	if s.streams == nil {
 		return status.Error(codes.Unimplemented, "streaming analysis is not enabled on this server")
@@ -54,18 +60,30 @@ func (s *Server) runStream(ss kinchainv1.KinematicsService_StreamCaptureServer) 
 
 // streamLoop is runStream's body; it returns the end reason (a
 // kinchain_streams_ended_total label) and the call's status.
+//
+// Responses go through a sender goroutine with a small queue, so that a
+// client that stops reading (its flow-control window full, Send blocked)
+// cannot hold the stream past the limits: when the queue accepts nothing
+// for StreamIdleTimeout the stream ends with DEADLINE_EXCEEDED. Every
+// ending except the client's own cancellation first waits (under the same
+// limit) until the queued responses are sent, so none is lost.
 func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer) (string, error) {
 	ctx := ss.Context()
 
-	// One goroutine receives; it stops when the call ends (done closed, or
-	// Recv failing once the handler has returned and gRPC cancelled the
-	// stream).
+	// One goroutine receives and decodes; it stops when the call ends
+	// (done closed, or RecvMsg failing once the handler has returned and
+	// gRPC cancelled the stream).
 	msgs := make(chan recvResult)
 	done := make(chan struct{})
 	defer close(done)
 	go func() {
 		for {
-			m, err := ss.Recv()
+			var raw rawMessage
+			err := ss.RecvMsg(&raw)
+			var m *kinchainv1.StreamCaptureRequest
+			if err == nil {
+				m, err = decodeStreamRequest(raw)
+			}
 			select {
 			case msgs <- recvResult{m, err}:
 			case <-done:
@@ -76,6 +94,25 @@ func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer)
 			}
 		}
 	}()
+
+	out := s.newSender(ss)
+	defer out.stop()
+	stall := s.cfg.StreamIdleTimeout
+	// end waits for the queued responses, then yields the final status.
+	end := func(reason string, final error) (string, error) {
+		if err := out.finish(ctx, stall); err != nil {
+			return s.sendFailed(ctx, err)
+		}
+		return reason, final
+	}
+	// send queues responses; ok is false when the stream must end.
+	send := func(rs []*kinchainv1.StreamCaptureResponse) (string, error, bool) {
+		if err := out.enqueue(ctx, rs, stall); err != nil {
+			r, e := s.sendFailed(ctx, err)
+			return r, e, false
+		}
+		return "", nil, true
+	}
 
 	idle := time.NewTimer(s.cfg.StreamIdleTimeout)
 	defer idle.Stop()
@@ -88,52 +125,56 @@ func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer)
 		case r := <-msgs:
 			if errors.Is(r.err, io.EOF) {
 				if sess == nil {
-					return streamEndError, fieldViolation("header", "HEADER_REQUIRED", "the stream was closed before its header was sent")
+					return end(streamEndError, fieldViolation("header", "HEADER_REQUIRED", "the stream was closed before its header was sent"))
 				}
-				if err := s.sendAll(ss, sess.Close()); err != nil {
-					return streamEndCanceled, s.sendError(ctx, err)
+				if reason, err, ok := send(sess.Close()); !ok {
+					return reason, err
 				}
-				return streamEndClient, nil
+				return end(streamEndClient, nil)
 			}
 			if r.err != nil {
+				var ve *validate.Error
+				if errors.As(r.err, &ve) {
+					return end(streamEndError, s.toStatus(ctx, r.err, scopeStream))
+				}
 				return streamEndCanceled, s.sendError(ctx, r.err)
 			}
 			idle.Reset(s.cfg.StreamIdleTimeout)
 			switch m := r.msg.GetMessage().(type) {
 			case *kinchainv1.StreamCaptureRequest_Header:
 				if sess != nil {
-					return streamEndError, fieldViolation("header", "DUPLICATE_HEADER", "a second header was sent; a stream has one header, as its first message")
+					return end(streamEndError, fieldViolation("header", "DUPLICATE_HEADER", "a second header was sent; a stream has one header, as its first message"))
 				}
 				if m.Header == nil {
-					return streamEndError, fieldViolation("header", "MISSING_FIELD", "empty header")
+					return end(streamEndError, fieldViolation("header", "MISSING_FIELD", "empty header"))
 				}
 				ns, err := s.streams(m.Header)
 				if err != nil {
-					return streamEndError, s.toStatus(ctx, err, scopeHeader)
+					return end(streamEndError, s.toStatus(ctx, err, scopeHeader))
 				}
 				sess = ns
 			case *kinchainv1.StreamCaptureRequest_Batch:
 				if sess == nil {
-					return streamEndError, fieldViolation("message", "HEADER_REQUIRED", "the first message must be a header, got a batch")
+					return end(streamEndError, fieldViolation("message", "HEADER_REQUIRED", "the first message must be a header, got a batch"))
 				}
-				out, err := sess.Push(m.Batch)
-				if serr := s.sendAll(ss, out); serr != nil {
-					return streamEndCanceled, s.sendError(ctx, serr)
+				rs, err := sess.Push(m.Batch)
+				if reason, serr, ok := send(rs); !ok {
+					return reason, serr
 				}
 				if err != nil {
-					return streamEndError, s.toStatus(ctx, err, scopeBatch)
+					return end(streamEndError, s.toStatus(ctx, err, scopeBatch))
 				}
 			default:
-				return streamEndError, fieldViolation("message", "MISSING_FIELD", "set header or batch")
+				return end(streamEndError, fieldViolation("message", "MISSING_FIELD", "set header or batch"))
 			}
 		case <-idle.C:
-			return streamEndIdle, s.flush(ctx, ss, sess, status.Errorf(codes.DeadlineExceeded,
+			return s.flush(ctx, out, sess, stall, streamEndIdle, status.Errorf(codes.DeadlineExceeded,
 				"stream idle for %v (the server's idle limit); reports so far were sent", s.cfg.StreamIdleTimeout))
 		case <-life.C:
-			return streamEndDuration, s.flush(ctx, ss, sess, status.Errorf(codes.DeadlineExceeded,
+			return s.flush(ctx, out, sess, stall, streamEndDuration, status.Errorf(codes.DeadlineExceeded,
 				"stream open for %v (the server's maximum stream duration); reports so far were sent", s.cfg.MaxStreamDuration))
 		case <-s.draining:
-			return streamEndShutdown, s.flush(ctx, ss, sess, status.Error(codes.Unavailable,
+			return s.flush(ctx, out, sess, stall, streamEndShutdown, status.Error(codes.Unavailable,
 				"server shutting down; the summary covers the samples received so far, open a new stream to continue"))
 		case <-ctx.Done():
 			return streamEndCanceled, status.FromContextError(ctx.Err()).Err()
@@ -141,30 +182,134 @@ func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer)
 	}
 }
 
-// flush closes sess (when open), sends what it returns, and then yields
-// final as the call's status.
-func (s *Server) flush(ctx context.Context, ss kinchainv1.KinematicsService_StreamCaptureServer, sess StreamSession, final error) error {
+// flush closes sess (when open), sends what it returns and everything
+// queued, and then yields final as the call's status.
+func (s *Server) flush(ctx context.Context, out *sender, sess StreamSession, stall time.Duration, reason string, final error) (string, error) {
 	if sess != nil {
-		if err := s.sendAll(ss, sess.Close()); err != nil {
-			return s.sendError(ctx, err)
+		if err := out.enqueue(ctx, sess.Close(), stall); err != nil {
+			return s.sendFailed(ctx, err)
 		}
 	}
-	return final
+	if err := out.finish(ctx, stall); err != nil {
+		return s.sendFailed(ctx, err)
+	}
+	return reason, final
 }
 
-// sendAll sends responses in order, counting the samples and swings of a
-// summary.
-func (s *Server) sendAll(ss kinchainv1.KinematicsService_StreamCaptureServer, out []*kinchainv1.StreamCaptureResponse) error {
-	for _, r := range out {
-		if err := ss.Send(r); err != nil {
-			return err
+// errStalled: the client read nothing for the stall limit.
+var errStalled = errors.New("client not reading")
+
+// sendFailed maps a sender failure to the end reason and status.
+func (s *Server) sendFailed(ctx context.Context, err error) (string, error) {
+	if errors.Is(err, errStalled) {
+		return streamEndIdle, status.Errorf(codes.DeadlineExceeded,
+			"the client read no response for %v (the server's idle limit); the stream is ended", s.cfg.StreamIdleTimeout)
+	}
+	return streamEndCanceled, s.sendError(ctx, err)
+}
+
+// sender sends a stream's responses from its own goroutine, in order.
+type sender struct {
+	s     *Server
+	ss    kinchainv1.KinematicsService_StreamCaptureServer
+	queue chan *kinchainv1.StreamCaptureResponse
+	quit  chan struct{} // closed by stop: send nothing more
+	exit  chan struct{} // closed when the goroutine has returned
+	err   error         // the Send error that stopped it; read after exit
+	once  bool          // queue closed
+}
+
+// senderQueue is how many responses may wait for a slow client.
+const senderQueue = 16
+
+func (s *Server) newSender(ss kinchainv1.KinematicsService_StreamCaptureServer) *sender {
+	o := &sender{s: s, ss: ss, queue: make(chan *kinchainv1.StreamCaptureResponse, senderQueue),
+		quit: make(chan struct{}), exit: make(chan struct{})}
+	go o.run()
+	return o
+}
+
+func (o *sender) run() {
+	defer close(o.exit)
+	for r := range o.queue {
+		select {
+		case <-o.quit:
+			return
+		default:
+		}
+		if err := o.ss.Send(r); err != nil {
+			o.err = err
+			return
 		}
 		if sum := r.GetSummary(); sum != nil {
-			s.metrics.samples.Add(float64(sum.GetSamples()))
-			s.metrics.swings.Add(float64(sum.GetSwings()))
+			o.s.metrics.samples.Add(float64(sum.GetSamples()))
+			o.s.metrics.swings.Add(float64(sum.GetSwings()))
+		}
+	}
+}
+
+// enqueue queues rs in order. It fails with errStalled when the queue
+// accepts nothing for stall, with the Send error when the sender stopped,
+// or with the context's error.
+func (o *sender) enqueue(ctx context.Context, rs []*kinchainv1.StreamCaptureResponse, stall time.Duration) error {
+	if len(rs) == 0 {
+		return nil
+	}
+	t := time.NewTimer(stall)
+	defer t.Stop()
+	for _, r := range rs {
+		select {
+		case o.queue <- r:
+			t.Reset(stall)
+		case <-o.exit:
+			if err := o.failure(); err != nil {
+				return err
+			}
+			return errors.New("stream sender stopped")
+		case <-t.C:
+			return errStalled
+		case <-ctx.Done():
+			return ctx.Err()
 		}
 	}
 	return nil
+}
+
+// finish closes the queue and waits until everything queued is sent, for
+// at most stall.
+func (o *sender) finish(ctx context.Context, stall time.Duration) error {
+	if !o.once {
+		o.once = true
+		close(o.queue)
+	}
+	t := time.NewTimer(stall)
+	defer t.Stop()
+	select {
+	case <-o.exit:
+		return o.failure()
+	case <-t.C:
+		return errStalled
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+}
+
+func (o *sender) failure() error {
+	if o.err != nil {
+		return o.err
+	}
+	return nil
+}
+
+// stop tells the sender to send nothing more. It does not wait: a Send
+// blocked on a client that does not read returns once the handler has
+// returned and gRPC has ended the stream.
+func (o *sender) stop() {
+	close(o.quit)
+	if !o.once {
+		o.once = true
+		close(o.queue)
+	}
 }
 
 // sendError is the status for a failed Send or Recv: the context's error

@@ -12,9 +12,11 @@ import (
 )
 
 // Parameters of the causal detector and of the analysis window. All are our
-// choices (see NOTES-stream.md); the still, onset, merge and finish levels
-// are the swing package's (swing.StillFloor and the rest), so that the live
-// events and the batch analysis agree on what "still" and "finish" mean.
+// choices (see NOTES-stream.md). What the live events share with the batch
+// analysis comes from the swing package itself, so that the two cannot
+// drift apart: the still, onset, merge and finish levels (swing.StillFloor
+// and the rest), the swing criteria (swing.CriteriaFor), the driver order
+// (swing.Drivers) and the pointer axis (swing.PointerAxis).
 const (
 	// PreRoll is how much stream time before a swing's first movement its
 	// analysis window starts, s. The batch analysis looks 0.3 s before the
@@ -52,39 +54,6 @@ const (
 	// times are corrected by.
 	LiveCutoffFraction = 0.5
 )
-
-// criteria are a driver's swing criteria: the backswing amplitude in its
-// swing plane (rad) and the peak speed (rad/s) a full swing reaches. They
-// are the values of the swing package's limitsFor, which it does not export
-// (kept equal by hand; see NOTES-stream.md).
-type criteria struct{ amplitude, peak float64 }
-
-func criteriaFor(d kinchainv1.Segment) criteria {
-	const deg = math.Pi / 180
-	switch d {
-	case kinchainv1.Segment_SEGMENT_CLUB:
-		return criteria{150 * deg, 700 * deg}
-	case kinchainv1.Segment_SEGMENT_LEAD_HAND:
-		return criteria{110 * deg, 500 * deg}
-	case kinchainv1.Segment_SEGMENT_LEAD_FOREARM:
-		return criteria{90 * deg, 400 * deg}
-	default:
-		return criteria{75 * deg, 300 * deg}
-	}
-}
-
-// driverOrder lists the segments that can drive detection, most distal
-// first, as in the swing package: the first one the header declares is the
-// driver.
-var driverOrder = []kinchainv1.Segment{
-	kinchainv1.Segment_SEGMENT_CLUB, kinchainv1.Segment_SEGMENT_LEAD_HAND,
-	kinchainv1.Segment_SEGMENT_LEAD_FOREARM, kinchainv1.Segment_SEGMENT_LEAD_UPPER_ARM,
-}
-
-// pointer is the segment-frame axis whose direction the swing angle
-// follows for limbs and the club: the distal direction −z (the swing
-// package's pointerAxis).
-var pointer = r3.Vec{Z: -1}
 
 // phase is the detector's state.
 type phase uint8
@@ -163,7 +132,7 @@ const armHistory = 8
 // from the unfiltered φ and needs no correction.
 type detector struct {
 	seg      kinchainv1.Segment
-	crit     criteria
+	crit     swing.Criteria
 	gyroOnly bool
 	axis     r3.Vec // the pointer in the sensor frame
 	gapBound float64
@@ -232,7 +201,7 @@ type detector struct {
 // Hz. axis is the pointer in the sensor frame; cutoff the low-pass cutoff,
 // Hz (0: unfiltered).
 func newDetector(seg kinchainv1.Segment, rate, cutoff float64, axis r3.Vec, gyroOnly bool, gapBound float64) (*detector, error) {
-	d := &detector{seg: seg, crit: criteriaFor(seg), gyroOnly: gyroOnly, axis: axis, gapBound: gapBound,
+	d := &detector{seg: seg, crit: swing.CriteriaFor(seg), gyroOnly: gyroOnly, axis: axis, gapBound: gapBound,
 		quiet: math.Inf(1), qblock: [2]float64{math.Inf(1), math.Inf(1)}}
 	if cutoff > 0 {
 		var err error
@@ -380,7 +349,7 @@ func (d *detector) step(t float64, q quat.Number) {
 			d.impact = tPrev + dt*crossingAt(phiPrev, d.phi, 0)
 			d.impactKnown = true
 			d.ph = phFollow
-			if d.peak >= d.crit.peak {
+			if d.peak >= d.crit.PeakSpeed {
 				d.impactSent = true
 				d.emit(kinchainv1.EventKind_EVENT_KIND_IMPACT, d.impact, t)
 			}
@@ -392,12 +361,12 @@ func (d *detector) step(t float64, q quat.Number) {
 			d.abandon(t, q)
 		}
 	case phFollow:
-		if !d.impactSent && d.peak >= d.crit.peak {
+		if !d.impactSent && d.peak >= d.crit.PeakSpeed {
 			d.impactSent = true
 			d.emit(kinchainv1.EventKind_EVENT_KIND_IMPACT, d.impact, t)
 		}
 		d.armCheck(t)
-		if v <= math.Max(2*d.still, swing.FinishFraction*d.peak) {
+		if v <= math.Max(swing.FinishStillFactor*d.still, swing.FinishFraction*d.peak) {
 			d.ph = phSettle
 			d.settleFrom = t
 		} else if t-d.impact > MaxFollowThrough {
@@ -544,7 +513,7 @@ func (d *detector) backswing(t, tPrev, v, vPrev, ratePrev float64, q, qLast quat
 	}
 	if d.topTent && d.rate >= d.still && d.phi-d.phiMin >= TopConfirmAngle {
 		d.topTent = false
-		if -d.phiMin >= d.crit.amplitude {
+		if -d.phiMin >= d.crit.Amplitude {
 			d.ph = phDown
 			d.topAt = t
 			// The address direction: at the takeaway's address sample when

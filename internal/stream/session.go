@@ -15,6 +15,7 @@ import (
 	"github.com/kinchain/kinchain/internal/engine"
 	"github.com/kinchain/kinchain/internal/kinematics"
 	"github.com/kinchain/kinchain/internal/rot"
+	"github.com/kinchain/kinchain/internal/swing"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -51,6 +52,8 @@ type segState struct {
 	neutral []quat.Number // normalised quaternions inside options.neutral
 
 	// Lead upper arm: the previous vertical component of its distal axis.
+	// armAxis is the segment's swing.PointerAxis in the sensor frame (the
+	// driver's detector follows the same axis).
 	armAxis  r3.Vec
 	armPrevZ float64
 	armPrevT float64
@@ -155,10 +158,10 @@ func NewSession(h *kinchainv1.StreamHeader, lim Limits) (*Session, error) {
 	// The window analyses get explicit mountings instead (see calibrate).
 	s.opts.Neutral = nil
 	for i, seg := range h.GetSegments() {
-		st := &segState{seg: seg, name: segmentName(seg), armAxis: pointer}
+		st := &segState{seg: seg, name: segmentName(seg), armAxis: swing.PointerAxis(seg)}
 		if mounts != nil {
 			st.mount = mounts[i]
-			st.armAxis = rot.Rotate(rot.Conj(*mounts[i]), pointer)
+			st.armAxis = rot.Rotate(rot.Conj(*mounts[i]), swing.PointerAxis(seg))
 		}
 		st.stats.init(s.rate)
 		s.segs = append(s.segs, st)
@@ -167,7 +170,7 @@ func NewSession(h *kinchainv1.StreamHeader, lim Limits) (*Session, error) {
 			s.arm = i
 		}
 	}
-	for _, d := range driverOrder {
+	for _, d := range swing.Drivers() {
 		if k := s.bySeg[d]; k >= 0 {
 			s.driver = k
 			break
@@ -314,9 +317,9 @@ func (s *Session) neutralCap() int {
 
 // newDetector starts the detector on the driver's first samples.
 func (s *Session) newDetector(st *segState) {
-	axis := pointer
+	axis := swing.PointerAxis(st.seg)
 	if st.mount != nil {
-		axis = rot.Rotate(rot.Conj(*st.mount), pointer)
+		axis = rot.Rotate(rot.Conj(*st.mount), axis)
 	}
 	gyroOnly := !st.ring.set.has(aQw)
 	d, err := newDetector(st.seg, s.rate, s.cutoff(), axis, gyroOnly, st.stats.bound)
@@ -538,7 +541,7 @@ func (s *Session) calibrate() {
 		}
 		m := condition.NeutralMounting(means[k], heading)
 		st.mount = &m
-		st.armAxis = rot.Rotate(rot.Conj(m), pointer)
+		st.armAxis = rot.Rotate(rot.Conj(m), swing.PointerAxis(st.seg))
 		if k == s.driver && s.det != nil {
 			s.det.setAxis(st.armAxis)
 		}

@@ -39,6 +39,15 @@ const (
 // distal first: top and impact come from the first one present.
 var driverOrder = []kinchainv1.Segment{clubSeg, leadHand, leadFore, leadArm}
 
+// Drivers returns the segments that can drive the event detection, most
+// distal first: club, lead hand, lead forearm, lead upper arm. Analyze
+// takes the first one present (and the next when it yields no swing); the
+// live detector of internal/stream the first one a stream declares. The
+// slice is a fresh copy.
+func Drivers() []kinchainv1.Segment {
+	return append([]kinchainv1.Segment(nil), driverOrder...)
+}
+
 // chain is the kinetic chain of the sequence checks and gains.
 var chain = []kinchainv1.Segment{pelvis, thorax, leadArm, leadHand, clubSeg}
 
@@ -64,7 +73,7 @@ type analysis struct {
 	segs     []*seg
 	bySeg    map[kinchainv1.Segment]*seg
 	driver   *seg
-	limits   limits
+	limits   Criteria
 	swings   []*swingResult
 	warnings []*kinchainv1.Warning
 	// scratch holds reusable series buffers.
@@ -132,7 +141,7 @@ func Analyze(k *kinematics.Result, opt Options) ([]*kinchainv1.SwingReport, []*k
 		if s == nil {
 			continue
 		}
-		a.driver, a.limits = s, limitsFor(d)
+		a.driver, a.limits = s, CriteriaFor(d)
 		a.swings, a.warnings = nil, nil
 		for _, ep := range a.episodes() {
 			a.episode(ep[0], ep[1], 0)
@@ -184,12 +193,6 @@ func segName(s kinchainv1.Segment) string {
 }
 
 func (a *analysis) time(i int) float64 { return a.k.Grid.Time(i) }
-
-// index returns the sample index nearest to time t, clamped to the grid.
-func (a *analysis) index(t float64) int {
-	i := int(math.Round((t - a.k.Grid.Start) / a.dt))
-	return max(0, min(a.n-1, i))
-}
 
 func (s *seg) valid(i int) bool { return s.ks.Valid == nil || s.ks.Valid[i] }
 

@@ -43,8 +43,8 @@
 //   - impact: the driver's angle returns to its address value (φ from < 0
 //     to ≥ 0) after the top; with accelerometer readings, moved to the
 //     ball-strike shock when one is found within ShockWindow;
-//   - finish: the driver's speed falls to max(2 × still, FinishFraction ×
-//     peak) and stops falling;
+//   - finish: the driver's speed falls to max(FinishStillFactor × still,
+//     FinishFraction × peak) and stops falling;
 //   - lead arm level, backswing and downswing: the lead upper arm's long
 //     axis passes horizontal going up (first crossing after the address)
 //     and coming down (last crossing before impact);
@@ -61,7 +61,9 @@
 //
 // Each present segment's peak speed (the selected speed definition) is
 // the largest in its downswing window, from the earlier of the top and its
-// own transition to DownswingAfterImpact after impact, refined by
+// own transition to DownswingAfterImpact after impact (counted in whole
+// samples from the impact sample, so that the window does not depend on
+// where the grid starts), refined by
 // three-point parabolic interpolation. Gains compare adjacent present links
 // of pelvis → thorax → lead upper arm → lead hand → club;
 // proximal_to_distal requires those links to peak in that order, each

@@ -38,11 +38,13 @@ const (
 	// CandidateFactor × still level), rad/s (100 °/s).
 	CandidateSpeed  = 100 * math.Pi / 180
 	CandidateFactor = 3.0
-	// FinishFraction: after the downswing the finish is where the driver's
-	// speed first falls to max(2 × still level, FinishFraction × its peak)
-	// and then stops falling (at most FinishSettle later, s).
-	FinishFraction = 0.10
-	FinishSettle   = 0.3
+	// FinishFraction and FinishStillFactor: after the downswing the finish
+	// is where the driver's speed first falls to max(FinishStillFactor ×
+	// still level, FinishFraction × its peak) and then stops falling (at
+	// most FinishSettle later, s).
+	FinishFraction    = 0.10
+	FinishStillFactor = 2.0
+	FinishSettle      = 0.3
 	// TransitionLookback: a segment's transition is searched from this long
 	// before the top (the plane is still taken at address), s.
 	TransitionLookback = 0.5
@@ -64,28 +66,41 @@ const (
 	ShockFloor  = 50.0
 )
 
-// limits are the swing criteria of one driver segment: the backswing
-// amplitude of its pointer in its swing plane (rad) and its peak speed
-// (rad/s) that a full swing reaches.
-type limits struct {
-	amplitude, peak float64
+// Criteria are the swing criteria of one driver segment: what its
+// movement must reach to be analysed as a full swing (a waggle or a half
+// swing does not; it gets a SWING_REJECTED warning). The live detector of
+// internal/stream applies the same values.
+type Criteria struct {
+	// Amplitude is the least backswing amplitude −φ(top) of the driver's
+	// pointer in its swing plane, rad.
+	Amplitude float64
+	// PeakSpeed is the least peak speed |ω| of the driver, rad/s.
+	PeakSpeed float64
 }
 
-// limitsFor returns the swing criteria for a driver. A half swing turns the
-// club about 90°–120° (shaft horizontal or a little past), a waggle 20°–40°;
-// a full swing turns it past vertical (180°). The limb thresholds scale down
+// CriteriaFor returns the swing criteria for driver segment d:
+//
+//	driver           backswing amplitude   peak speed
+//	club             150°                  700 °/s
+//	lead hand        110°                  500 °/s
+//	lead forearm      90°                  400 °/s
+//	lead upper arm    75°                  300 °/s
+//
+// Any other segment gets the lead upper arm's. A half swing turns the club
+// about 90°–120° (shaft horizontal or a little past), a waggle 20°–40°; a
+// full swing turns it past vertical (180°). The limb thresholds scale down
 // with the limb's smaller share of the turn (our choices; common practice,
 // no source).
-func limitsFor(d kinchainv1.Segment) limits {
+func CriteriaFor(d kinchainv1.Segment) Criteria {
 	switch d {
 	case clubSeg:
-		return limits{rad(150), rad(700)}
+		return Criteria{rad(150), rad(700)}
 	case leadHand:
-		return limits{rad(110), rad(500)}
+		return Criteria{rad(110), rad(500)}
 	case leadFore:
-		return limits{rad(90), rad(400)}
+		return Criteria{rad(90), rad(400)}
 	default:
-		return limits{rad(75), rad(300)}
+		return Criteria{rad(75), rad(300)}
 	}
 }
 
@@ -397,13 +412,13 @@ func (a *analysis) detect(from, hi, pk int, full bool) (*swingResult, string) {
 	}
 
 	var why []string
-	if sw.amplitude < a.limits.amplitude {
+	if sw.amplitude < a.limits.Amplitude {
 		why = append(why, fmt.Sprintf("backswing of the %s %.0f° in its swing plane, below %.0f° (half swing or waggle)",
-			segName(d.id), deg(sw.amplitude), deg(a.limits.amplitude)))
+			segName(d.id), deg(sw.amplitude), deg(a.limits.Amplitude)))
 	}
-	if d.mag[pk] < a.limits.peak {
+	if d.mag[pk] < a.limits.PeakSpeed {
 		why = append(why, fmt.Sprintf("peak speed of the %s %.0f °/s, below %.0f °/s",
-			segName(d.id), deg(d.mag[pk]), deg(a.limits.peak)))
+			segName(d.id), deg(d.mag[pk]), deg(a.limits.PeakSpeed)))
 	}
 	// Impact: the driver's angle returns to its address value.
 	m := -1
@@ -474,13 +489,13 @@ func (a *analysis) allStill(i int) bool {
 }
 
 // finishAfter returns the finish sample at or after from: the first valid
-// sample where the driver's speed falls to max(2 × still level,
-// FinishFraction × its speed at pk), moved on while the speed keeps falling
+// sample where the driver's speed falls to max(FinishStillFactor × still
+// level, FinishFraction × its speed at pk), moved on while the speed keeps falling
 // (at most FinishSettle); −1 when the speed does not fall that far within
 // MergeGap after hi.
 func (a *analysis) finishAfter(pk, from, hi int) int {
 	d := a.driver
-	level := math.Max(2*d.still, FinishFraction*d.mag[pk])
+	level := math.Max(FinishStillFactor*d.still, FinishFraction*d.mag[pk])
 	limit := min(a.n-1, hi+int(math.Round(MergeGap/a.dt)))
 	settle := int(math.Round(FinishSettle / a.dt))
 	for i := from; i <= limit; i++ {
@@ -555,7 +570,7 @@ func median(v []float64) float64 {
 // and lists its events in time order.
 func (a *analysis) complete(sw *swingResult) {
 	f := &sw.f
-	winEnd := min(a.n-1, sw.impactIdx+1+int(math.Round(DownswingAfterImpact/a.dt)))
+	winEnd := a.downswingEnd(sw)
 	for _, s := range a.segs {
 		if s == a.driver {
 			sw.transitions[s.id] = sw.top

@@ -1,6 +1,7 @@
 package swing
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"strings"
@@ -311,5 +312,42 @@ func TestCaptureStartsInBackswing(t *testing.T) {
 	_, reps, warns := pipeline(t, c, noFilter())
 	if len(reps) != 0 || len(warns) != 1 || !strings.Contains(warns[0].Message, "starts before the capture") {
 		t.Fatalf("%d swings, warnings %v", len(reps), warns)
+	}
+}
+
+// Reference: the swing criteria table (DEVELOPERS.md, "Swing criteria"; our
+// choices, common practice, no source: a half swing turns the club 90°–120°,
+// a waggle 20°–40°, a full swing past 180°). CriteriaFor is what Analyze
+// rejects against and what the live detector of internal/stream applies;
+// the values are pinned here so that a change is a visible decision. The
+// amplitudes and speeds fall from the club to the lead upper arm (the limb's
+// smaller share of the turn), and a segment that cannot drive gets the lead
+// upper arm's. Drivers lists the driver order, most distal first.
+func TestCriteriaTable(t *testing.T) {
+	for _, c := range []struct {
+		seg        kinchainv1.Segment
+		ampDeg, pk float64
+	}{
+		{clubSeg, 150, 700}, {leadHand, 110, 500}, {leadFore, 90, 400}, {leadArm, 75, 300}, {pelvis, 75, 300},
+	} {
+		got := CriteriaFor(c.seg)
+		if math.Abs(deg(got.Amplitude)-c.ampDeg) > 1e-9 || math.Abs(deg(got.PeakSpeed)-c.pk) > 1e-9 {
+			t.Errorf("%v: %.6g° and %.6g °/s, want %g° and %g °/s", c.seg, deg(got.Amplitude), deg(got.PeakSpeed), c.ampDeg, c.pk)
+		}
+	}
+	d := Drivers()
+	want := []kinchainv1.Segment{clubSeg, leadHand, leadFore, leadArm}
+	if fmt.Sprint(d) != fmt.Sprint(want) {
+		t.Fatalf("Drivers() = %v, want %v", d, want)
+	}
+	for i := 1; i < len(d); i++ {
+		a, b := CriteriaFor(d[i-1]), CriteriaFor(d[i])
+		if !(a.Amplitude > b.Amplitude && a.PeakSpeed > b.PeakSpeed) {
+			t.Errorf("%v's criteria %v not above %v's %v", d[i-1], a, d[i], b)
+		}
+	}
+	d[0] = pelvis
+	if Drivers()[0] != clubSeg {
+		t.Error("Drivers returns the package's own slice")
 	}
 }

@@ -44,7 +44,7 @@ func (f *frame) vector(v r3.Vec) r3.Vec {
 	return r3.Vec{X: x, Y: y, Z: v.Z}
 }
 
-// pointer returns the pointer of segment s (see pointerAxis) with world
+// pointer returns the pointer of segment s (see PointerAxis) with world
 // orientation q, in the (mirrored) target-line frame: a column of q's
 // rotation matrix, turned into the frame. The mirror of a direction
 // carried by a mirrored orientation is the mirrored direction:
@@ -112,11 +112,12 @@ func bodySegment(s kinchainv1.Segment) bool {
 		s == kinchainv1.Segment_SEGMENT_HEAD
 }
 
-// pointerAxis is the segment-frame axis whose direction the swing angles
-// follow: the anterior axis x of the trunk segments, the distal direction
-// −z of the limbs and the club (shoulder → elbow, elbow → wrist,
-// wrist → fingers, grip → club head).
-func pointerAxis(s kinchainv1.Segment) r3.Vec {
+// PointerAxis is the segment-frame axis whose direction the swing angles
+// follow: the anterior axis x of the trunk segments (pelvis, thorax, head),
+// the distal direction −z of the limbs and the club (shoulder → elbow,
+// elbow → wrist, wrist → fingers, grip → club head). The lead-arm level
+// events watch the lead upper arm's.
+func PointerAxis(s kinchainv1.Segment) r3.Vec {
 	if bodySegment(s) {
 		return r3.Vec{X: 1}
 	}

@@ -64,7 +64,7 @@ func TestPlaneRateIsAngleDerivative(t *testing.T) {
 	for i := 0; i < 200; i++ {
 		seg := []kinchainv1.Segment{pelvis, clubSeg}[i%2]
 		q0 := randRot(r)
-		ax := pointerAxis(seg)
+		ax := PointerAxis(seg)
 		pl, ok := planeFor(seg, rot.Rotate(q0, ax))
 		if !ok {
 			continue
@@ -242,7 +242,7 @@ func TestFramePointerMatchesQuaternion(t *testing.T) {
 		f := newFrame(r.Float64()*6-3, i%2 == 1)
 		q := randRot(r)
 		for _, s := range []kinchainv1.Segment{pelvis, clubSeg} {
-			want := rot.Rotate(f.orientation(q), pointerAxis(s))
+			want := rot.Rotate(f.orientation(q), PointerAxis(s))
 			if d := r3.Norm(r3.Sub(f.pointer(s, q), want)); d > 1e-12 {
 				t.Fatalf("pointer off by %g", d)
 			}

@@ -2,6 +2,7 @@ package swing
 
 import (
 	"fmt"
+	"math"
 	"sort"
 	"strings"
 
@@ -20,11 +21,11 @@ type sequenceResult struct {
 
 // sequence finds each present segment's peak speed in its downswing window,
 // from the earlier of the top and its own transition to
-// DownswingAfterImpact after impact, and derives the order, the
-// proximal-to-distal check and the gains.
+// DownswingAfterImpact after impact (downswingEnd), and derives the order,
+// the proximal-to-distal check and the gains.
 func (a *analysis) sequence(sw *swingResult) sequenceResult {
 	var res sequenceResult
-	end := min(a.n-1, a.index(sw.impact+DownswingAfterImpact))
+	end := a.downswingEnd(sw)
 	peaks := map[kinchainv1.Segment]*kinchainv1.SegmentPeak{}
 	for _, s := range a.segs {
 		start := sw.topIdx
@@ -64,6 +65,26 @@ func (a *analysis) sequence(sw *swingResult) sequenceResult {
 		res.gains = append(res.gains, gain(links[i-1], links[i]))
 	}
 	return res
+}
+
+// downswingEnd returns the last sample of the swing's downswing window,
+// counted in whole samples from the impact sample interval
+// [impactIdx, impactIdx+1] (impact lies inside it):
+//
+//	end = impactIdx + 1 + round(DownswingAfterImpact × rate),
+//
+// clamped to the grid: DownswingAfterImpact after the first sample at or
+// after impact, so the window reaches at least DownswingAfterImpact past
+// impact and less than one sample more. Counting from the index, not
+// rounding the time impact + DownswingAfterImpact to the nearest sample,
+// keeps the window independent of where the grid starts: an impact moved
+// to the ball-strike shock is the middle of a sample interval, and an exact
+// half rounds either way with the grid origin's rounding error, which made
+// an analysis of part of a capture (the live stream's window) end the
+// window one sample off the analysis of the whole capture. The transition
+// search (complete) ends at the same sample.
+func (a *analysis) downswingEnd(sw *swingResult) int {
+	return min(a.n-1, sw.impactIdx+1+int(math.Round(DownswingAfterImpact/a.dt)))
 }
 
 // peak returns the largest speed of s over the valid samples in

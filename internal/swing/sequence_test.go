@@ -168,3 +168,56 @@ func chainOrder(order []kinchainv1.Segment) []kinchainv1.Segment {
 	}
 	return out
 }
+
+// Reference: the window definition (DEVELOPERS.md, "Sequence, gains,
+// tempo"): the downswing window reaches DownswingAfterImpact past impact,
+// and a swing's report cannot depend on where the sample grid starts, only
+// on the samples (the live stream analyses a window of a capture, whose
+// grid starts elsewhere). With the club's accelerometer, impact is the
+// middle of the shock's sample interval, an exact half sample; the window
+// end must then still be the same sample for every grid origin. The head's
+// speed is replaced after the top by a ramp that is still rising at the
+// window's end, so its peak is the window's last sample: its time must lie
+// in [impact + 100 ms, impact + 100 ms + one sample) and be the same,
+// relative to impact, for every origin. (Rounding the time impact + 100 ms
+// to the nearest sample instead tipped either way with the origin's
+// rounding error: 31 of these 40 origins ended the window a sample early,
+// 99.5 ms after impact.)
+func TestDownswingWindowIndependentOfGridStart(t *testing.T) {
+	c, _ := generate(t, synth.Config{IMU: true})
+	kin, reps, _ := pipeline(t, c, nil)
+	if len(reps) != 1 {
+		t.Fatalf("%d swings", len(reps))
+	}
+	head := kin.Segment(kinchainv1.Segment_SEGMENT_HEAD)
+	top, _ := eventTime(reps[0], evTop)
+	dt := kin.Grid.Dt()
+	from := int(math.Ceil((top - kin.Grid.Start) / dt))
+	for i := from; i < len(head.Speed); i++ {
+		head.Speed[i] = rad(200) + rad(1)*float64(i-from) // +1 °/s per sample
+	}
+	var first float64
+	for k := 0; k < 40; k++ {
+		kin.Grid.Start = float64(k)*0.1234567 + float64(k%7)*1e-3
+		reps, _ := Analyze(kin, Options{})
+		if len(reps) != 1 {
+			t.Fatalf("start %g: %d swings", kin.Grid.Start, len(reps))
+		}
+		imp, _ := eventTime(reps[0], evImpact)
+		u := (imp - kin.Grid.Start) / dt
+		if math.Abs(u-math.Floor(u)-0.5) > 1e-6 {
+			t.Fatalf("start %g: impact %.6f s is not a half-sample time (no shock refinement?)", kin.Grid.Start, imp)
+		}
+		p := rowOf(reps[0], kinchainv1.Segment_SEGMENT_HEAD)
+		after := p.PeakTimeS - imp
+		if after < DownswingAfterImpact-1e-9 || after >= DownswingAfterImpact+dt-1e-9 {
+			t.Errorf("start %g: the head's ramp peaks %.4f ms after impact, want the window's end in [%g, %g) ms",
+				kin.Grid.Start, 1000*after, 1000*DownswingAfterImpact, 1000*(DownswingAfterImpact+dt))
+		}
+		if k == 0 {
+			first = after
+		} else if math.Abs(after-first) > 1e-9 {
+			t.Errorf("start %g: window end %.4f ms after impact, %.4f ms with the first origin", kin.Grid.Start, 1000*after, 1000*first)
+		}
+	}
+}
