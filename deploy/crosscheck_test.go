@@ -130,12 +130,18 @@ func portOf(t testing.TB, addr string) int32 {
 	return int32(n)
 }
 
-// listenAddrs maps container port names to the server's address variable.
-var listenAddrs = map[string]string{"grpc": "KINCHAIN_GRPC_ADDR", "http": "KINCHAIN_HTTP_ADDR", "metrics": "KINCHAIN_METRICS_ADDR"}
+// listenAddrs maps container port names to the server's address flag.
+var listenAddrs = map[string]string{"grpc": "grpc-addr", "http": "http-addr", "metrics": "metrics-addr", "health": "health-addr"}
+
+// servedPorts are the container ports clients and Prometheus reach (through
+// Services and the NetworkPolicy); the health port is the kubelet's alone.
+var servedPorts = map[string]bool{"grpc": true, "http": true, "metrics": true}
 
 // TestPortsAgree: the container listens on every interface on the ports
-// the pod declares, which are the server's documented default ports; the
-// Services, probes, NetworkPolicy and image agree with them.
+// the pod declares, which are the server's documented default ports (the
+// health listener has none: it is off by default); the Services, probes,
+// NetworkPolicy and image agree with them. Probes use the plain health
+// port, which needs no TLS, client certificate or token.
 func TestPortsAgree(t *testing.T) {
 	defaults := map[string]string{"grpc": server.DefaultGRPCAddr, "http": server.DefaultHTTPAddr, "metrics": server.DefaultMetricsAddr}
 	d := readRepoDockerfile(t)
@@ -164,13 +170,14 @@ func TestPortsAgree(t *testing.T) {
 			}
 		}
 		sort.Strings(cports)
-		if len(ports) != 3 {
-			t.Fatalf("%s: container ports %v, want grpc, http, metrics", dir, ports)
+		if len(ports) != len(listenAddrs) {
+			t.Fatalf("%s: container ports %v, want grpc, http, metrics, health", dir, ports)
 		}
 		if strings.Join(cports, " ") != strings.Join(exposed, " ") {
 			t.Errorf("%s: container ports %v, the image EXPOSEs %v", dir, cports, exposed)
 		}
-		for name, key := range listenAddrs {
+		for name, flag := range listenAddrs {
+			key := envForFlag(flag)
 			cp, ok := ports[name]
 			if !ok {
 				t.Errorf("%s: no container port named %s", dir, name)
@@ -188,8 +195,8 @@ func TestPortsAgree(t *testing.T) {
 			if got := portOf(t, addr); got != cp {
 				t.Errorf("%s: %s=%s, container port %s is %d", dir, key, addr, name, cp)
 			}
-			if dp := portOf(t, defaults[name]); dp != cp {
-				t.Errorf("%s: container port %s is %d, the server's default is %d", dir, name, cp, dp)
+			if def, ok := defaults[name]; ok && portOf(t, def) != cp {
+				t.Errorf("%s: container port %s is %d, the server's default is %s", dir, name, cp, def)
 			}
 			if iv, ok := imgEnv[key]; !ok || portOf(t, iv) != cp {
 				t.Errorf("%s: the image sets %s=%q, the pod's port is %d", dir, key, iv, cp)
@@ -201,8 +208,8 @@ func TestPortsAgree(t *testing.T) {
 		for _, s := range all[corev1.Service](b) {
 			for _, sp := range s.Spec.Ports {
 				cp, ok := ports[sp.Name]
-				if !ok {
-					t.Errorf("%s: Service %s port %s names no container port", dir, s.Name, sp.Name)
+				if !ok || !servedPorts[sp.Name] {
+					t.Errorf("%s: Service %s port %s: not a served container port (%v)", dir, s.Name, sp.Name, servedPorts)
 					continue
 				}
 				if sp.TargetPort.Type != intstr.String || sp.TargetPort.StrVal != sp.Name {
@@ -229,8 +236,11 @@ func TestPortsAgree(t *testing.T) {
 					t.Errorf("%s: %s gRPC probe on port %d, the gRPC port is %d", dir, what, pr.GRPC.Port, ports["grpc"])
 				}
 			case pr.HTTPGet != nil:
-				if pr.HTTPGet.Port.String() != "http" && pr.HTTPGet.Port.IntValue() != int(ports["http"]) {
-					t.Errorf("%s: %s probe on port %s, want the http port", dir, what, pr.HTTPGet.Port.String())
+				if pr.HTTPGet.Port.String() != "health" {
+					t.Errorf("%s: %s probe on port %s, want the health port (plain HTTP whatever the other ports require)", dir, what, pr.HTTPGet.Port.String())
+				}
+				if pr.HTTPGet.Scheme == corev1.URISchemeHTTPS {
+					t.Errorf("%s: %s probe over HTTPS; the health listener is plain HTTP", dir, what)
 				}
 			default:
 				t.Errorf("%s: %s probe is neither gRPC nor HTTP GET", dir, what)
@@ -248,8 +258,8 @@ func TestPortsAgree(t *testing.T) {
 					continue
 				}
 				name := p.Port.String()
-				if _, ok := ports[name]; !ok {
-					t.Errorf("%s: NetworkPolicy opens %s, not a container port name", dir, name)
+				if !servedPorts[name] {
+					t.Errorf("%s: NetworkPolicy opens %s, not a served container port (kubelet probes need no rule)", dir, name)
 				}
 				open[name] = true
 				if name == "metrics" && len(r.From) == 0 {
@@ -257,8 +267,8 @@ func TestPortsAgree(t *testing.T) {
 				}
 			}
 		}
-		if len(open) != len(ports) {
-			t.Errorf("%s: NetworkPolicy opens %v, the container has %v", dir, open, ports)
+		if len(open) != len(servedPorts) {
+			t.Errorf("%s: NetworkPolicy opens %v, want exactly %v", dir, open, servedPorts)
 		}
 		if len(np.Spec.Egress) != 0 || !contains(np.Spec.PolicyTypes, networkingv1.PolicyTypeEgress) {
 			t.Errorf("%s: egress should be denied (the server calls nothing)", dir)
@@ -447,9 +457,11 @@ func mountedSecretFiles(t *testing.T, d *appsv1.Deployment, env map[string]strin
 	return out
 }
 
-// startupConfig is the effective configuration the server logs at start.
+// startupConfig is the effective configuration the server logs at start
+// (the fields these checks use).
 type startupConfig struct {
 	Reflection            bool   `json:"reflection"`
+	Production            bool   `json:"production"`
 	TLS                   bool   `json:"tls"`
 	MaxConcurrentRequests int    `json:"max_concurrent_requests"`
 	MaxConcurrentStreams  int    `json:"max_concurrent_streams"`
@@ -552,8 +564,8 @@ func TestOverlaysRunWithTheirConfig(t *testing.T) {
 			case !wantReflection && status.Code(err) != codes.Unimplemented:
 				t.Errorf("reflection answered %v %v, want UNIMPLEMENTED", svcs, err)
 			}
-			if want := dir == "overlays/production"; useTLS != want {
-				t.Errorf("TLS %v, want %v", useTLS, want)
+			if want := dir == "overlays/production"; useTLS != want || cfg.Production != want {
+				t.Errorf("TLS %v, production mode %v; want both %v", useTLS, cfg.Production, want)
 			}
 
 			dr := drainTiming(t, dep, env)
@@ -570,7 +582,7 @@ func TestOverlaysRunWithTheirConfig(t *testing.T) {
 				t.Error("max connection age 0: clients of the headless Service would never re-resolve and find new replicas")
 			}
 
-			ports := map[string]string{"grpc": p.bound.GRPC, "http": p.bound.HTTP, "metrics": p.bound.Metrics}
+			ports := map[string]string{"grpc": p.bound.GRPC, "http": p.bound.HTTP, "metrics": p.bound.Metrics, "health": p.bound.Health}
 			for what, pr := range map[string]*corev1.Probe{"readiness": c.ReadinessProbe, "liveness": c.LivenessProbe, "startup": c.StartupProbe} {
 				if pr == nil {
 					continue
@@ -631,7 +643,7 @@ func runProbe(pr *corev1.Probe, c *corev1.Container, bound map[string]string, tl
 		if pr.HTTPGet.Scheme == corev1.URISchemeHTTPS {
 			scheme = "https"
 		}
-		if (scheme == "https") != (tlsOn && name != "metrics") {
+		if (scheme == "https") != (tlsOn && (name == "grpc" || name == "http")) {
 			return fmt.Errorf("HTTP probe scheme %s, but the server's %s port TLS is %v", scheme, name, tlsOn)
 		}
 		code, body, err := httpGet(scheme + "://" + addr + pr.HTTPGet.Path)

@@ -6,14 +6,12 @@ import (
 	"context"
 	"crypto/tls"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"net/http"
 	"os"
 	"os/exec"
 	"path/filepath"
-	"strings"
 	"sync"
 	"syscall"
 	"testing"
@@ -96,12 +94,13 @@ type serveProc struct {
 	err    error // Wait's result, valid once exited is closed
 }
 
-// boundAddrs are the listen addresses the server reported in its start-up
-// log line.
+// boundAddrs are the listen addresses the server reported in its
+// "serving" log line ("" for a listener that is off).
 type boundAddrs struct {
-	GRPC    string `json:"grpc"`
-	HTTP    string `json:"http"`
-	Metrics string `json:"metrics"`
+	GRPC    string `json:"grpc_addr"`
+	HTTP    string `json:"http_addr"`
+	Metrics string `json:"metrics_addr"`
+	Health  string `json:"health_addr"`
 }
 
 // serveOpts configure startServe.
@@ -112,8 +111,8 @@ type serveOpts struct {
 	cred *syscall.Credential
 }
 
-// startServe starts `bin serve` and waits (at most 30 s) for its start-up
-// log line, which names the bound addresses. The process is killed at the
+// startServe starts `bin serve` and waits (at most 30 s) for its "serving"
+// log line, which names the bound addresses; the server is ready then. The process is killed at the
 // end of the test if it is still running.
 func startServe(tb testing.TB, bin string, o serveOpts) *serveProc {
 	tb.Helper()
@@ -149,11 +148,11 @@ func startServe(tb testing.TB, bin string, o serveOpts) *serveProc {
 				continue
 			}
 			var rec struct {
-				Msg   string     `json:"msg"`
-				Bound boundAddrs `json:"bound"`
+				Msg string `json:"msg"`
+				boundAddrs
 			}
-			if json.Unmarshal(line, &rec) == nil && rec.Bound.GRPC != "" {
-				started <- rec.Bound
+			if json.Unmarshal(line, &rec) == nil && rec.Msg == "serving" && rec.GRPC != "" {
+				started <- rec.boundAddrs
 				sent = true
 			}
 		}
@@ -173,7 +172,7 @@ func startServe(tb testing.TB, bin string, o serveOpts) *serveProc {
 	case <-p.exited:
 		tb.Fatalf("kinchain serve exited before serving: %v\n%s", p.err, p.logText())
 	case <-time.After(30 * time.Second):
-		tb.Fatalf("kinchain serve wrote no start-up line within 30 s\n%s", p.logText())
+		tb.Fatalf("kinchain serve wrote no \"serving\" line within 30 s\n%s", p.logText())
 	}
 	return p
 }
@@ -253,16 +252,4 @@ func waitFor(limit time.Duration, cond func() bool) bool {
 		}
 		time.Sleep(50 * time.Millisecond)
 	}
-}
-
-// errorsJoin joins non-nil errors (nil when there are none).
-func errorsJoin(errs []error) error { return errors.Join(errs...) }
-
-// trimLines splits s into lines without trailing spaces.
-func trimLines(s string) []string {
-	var out []string
-	for _, l := range strings.Split(s, "\n") {
-		out = append(out, strings.TrimRight(l, " \t\r"))
-	}
-	return out
 }

@@ -189,7 +189,7 @@ func imageEnv(t *testing.T, d *dockerfile, podEnv map[string]string) []string {
 }
 
 // loopbackArgs are the serve flags that override the listen addresses.
-var loopbackArgs = []string{"-grpc-addr", "127.0.0.1:0", "-http-addr", "127.0.0.1:0", "-metrics-addr", "127.0.0.1:0"}
+var loopbackArgs = []string{"-grpc-addr", "127.0.0.1:0", "-http-addr", "127.0.0.1:0", "-metrics-addr", "127.0.0.1:0", "-health-addr", "127.0.0.1:0"}
 
 // procUID reads the real uid of a running process.
 func procUID(pid int) (int, error) {
@@ -245,9 +245,11 @@ func TestBinaryRunsUnprivileged(t *testing.T) {
 		t.Errorf("server runs as uid %d (%v), want %d", got, err, wantUID)
 	}
 
-	for _, path := range []string{"/healthz", "/readyz"} {
-		if code, b, err := httpGet("http://" + p.bound.HTTP + path); err != nil || code != 200 {
-			t.Errorf("GET %s: %d %s %v", path, code, b, err)
+	for _, addr := range []string{p.bound.HTTP, p.bound.Health} {
+		for _, path := range []string{"/healthz", "/readyz"} {
+			if code, b, err := httpGet("http://" + addr + path); err != nil || code != 200 {
+				t.Errorf("GET %s%s: %d %s %v", addr, path, code, b, err)
+			}
 		}
 	}
 	for _, svc := range []string{"", kinchainv1.KinematicsService_ServiceDesc.ServiceName} {
@@ -285,12 +287,12 @@ func TestBinaryRunsUnprivileged(t *testing.T) {
 	}
 	if timing.delay > 0 {
 		if !waitFor(timing.delay/2, func() bool {
-			code, _, _ := httpGet("http://" + p.bound.HTTP + "/readyz")
+			code, _, _ := httpGet("http://" + p.bound.Health + "/readyz")
 			return code == 503
 		}) {
 			t.Errorf("/readyz did not turn 503 after SIGTERM")
 		}
-		if code, _, err := httpGet("http://" + p.bound.HTTP + "/healthz"); code != 200 {
+		if code, _, err := httpGet("http://" + p.bound.Health + "/healthz"); code != 200 {
 			t.Errorf("/healthz during the shutdown delay: %d %v (liveness must hold while draining)", code, err)
 		}
 		if st, err := grpcHealth(p.bound.GRPC, kinchainv1.KinematicsService_ServiceDesc.ServiceName, false); err != nil || st != healthpb.HealthCheckResponse_NOT_SERVING {

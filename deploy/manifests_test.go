@@ -90,19 +90,11 @@ func decodeStrict(doc []byte) (any, error) {
 	return obj, nil
 }
 
-// jsonPatchOp is one RFC 6902 operation of a kustomize JSON patch file.
-type jsonPatchOp struct {
-	Op    string `json:"op"`
-	Path  string `json:"path"`
-	Value any    `json:"value,omitempty"`
-	From  string `json:"from,omitempty"`
-}
-
 // TestManifestsDecodeStrictly decodes every YAML file of the tree into the
 // Kubernetes API types (k8s.io/api; the Prometheus Operator's own types for
-// ServiceMonitor and PrometheusRule; kustomize's for kustomization.yaml):
-// an unknown or misspelt field anywhere is an error. JSON patch files are
-// decoded as RFC 6902 operations whose probe values decode as corev1.Probe.
+// ServiceMonitor and PrometheusRule; kustomize's for kustomization.yaml;
+// strategic-merge patch files as the kind they patch): an unknown or
+// misspelt field anywhere is an error.
 func TestManifestsDecodeStrictly(t *testing.T) {
 	n := 0
 	err := filepath.WalkDir(kubeDir, func(p string, de fs.DirEntry, err error) error {
@@ -112,26 +104,6 @@ func TestManifestsDecodeStrictly(t *testing.T) {
 		b, err := os.ReadFile(p)
 		if err != nil {
 			return err
-		}
-		if bytes.HasPrefix(bytes.TrimSpace(stripComments(b)), []byte("- op:")) {
-			var ops []jsonPatchOp
-			if err := yaml.UnmarshalStrict(b, &ops); err != nil {
-				t.Errorf("%s: %v", p, err)
-				return nil
-			}
-			for i, op := range ops {
-				if !strings.HasSuffix(op.Path, "Probe") {
-					t.Errorf("%s: op %d path %s: only probe replacements are expected", p, i, op.Path)
-					continue
-				}
-				vb, _ := yaml.Marshal(op.Value)
-				var probe corev1.Probe
-				if err := yaml.UnmarshalStrict(vb, &probe); err != nil {
-					t.Errorf("%s: op %d value: %v", p, i, err)
-				}
-			}
-			n++
-			return nil
 		}
 		for i, doc := range splitYAML(b) {
 			if _, err := decodeStrict(doc); err != nil {
@@ -151,18 +123,6 @@ func TestManifestsDecodeStrictly(t *testing.T) {
 	if _, err := decodeStrict([]byte("apiVersion: apps/v1\nkind: Deployment\nspec:\n  replica: 2\n")); err == nil {
 		t.Error("strict decoding accepted an unknown field")
 	}
-}
-
-// stripComments drops whole-line YAML comments.
-func stripComments(b []byte) []byte {
-	var out []byte
-	for _, l := range bytes.Split(b, []byte("\n")) {
-		if !bytes.HasPrefix(bytes.TrimSpace(l), []byte("#")) {
-			out = append(out, l...)
-			out = append(out, '\n')
-		}
-	}
-	return out
 }
 
 // built is the output of one kustomization, decoded strictly.

@@ -45,7 +45,7 @@ func fuzzRequest(b []byte) *kinchainv1.AnalyzeCaptureRequest {
 	c := &kinchainv1.Capture{CaptureId: "fuzz"}
 	for i := 0; i < nTracks; i++ {
 		t := &kinchainv1.Track{Segment: kinchainv1.Segment(1 + int(f.next())%10)}
-		kind := f.next() % 3 // 0: orientation, 1: raw inertial, 2: both
+		kind := f.next() % 3                 // 0: orientation, 1: raw inertial, 2: both
 		step := 0.5 + 5*math.Abs(f.signed()) // rad/s scale of the walk
 		q := [4]float64{1, 0, 0, 0}
 		for k := 0; k < n; k++ {

@@ -152,7 +152,9 @@ func (c rawCodec) Marshal(v any) (mem.BufferSlice, error) {
 	return c.CodecV2.Marshal(v)
 }
 
-func rawCallOption() grpc.CallOption { return grpc.ForceCodecV2(rawCodec{encoding.GetCodecV2("proto")}) }
+func rawCallOption() grpc.CallOption {
+	return grpc.ForceCodecV2(rawCodec{encoding.GetCodecV2("proto")})
+}
 
 // captureField wraps an encoded Capture as field 1 of an
 // AnalyzeCaptureRequest.

@@ -489,9 +489,19 @@ func (s *Server) gatewayError(ctx context.Context, mux *runtime.ServeMux, m runt
 		}
 		w.Header().Set("Retry-After", strconv.Itoa(int((retry+time.Second-1)/time.Second)))
 	case codes.Unauthenticated:
-		w.Header().Set("WWW-Authenticate", `Bearer realm="kinchain"`)
+		// The gateway puts the status message in WWW-Authenticate; the
+		// challenge of RFC 6750 §3 goes there instead.
+		w = challengeWriter{w}
 	}
 	runtime.DefaultHTTPErrorHandler(ctx, mux, m, w, r, err)
+}
+
+// challengeWriter sets the bearer challenge as the header is written.
+type challengeWriter struct{ http.ResponseWriter }
+
+func (c challengeWriter) WriteHeader(code int) {
+	c.Header().Set("WWW-Authenticate", `Bearer realm="kinchain"`)
+	c.ResponseWriter.WriteHeader(code)
 }
 
 func writeJSON(w http.ResponseWriter, code int, body string) {
@@ -552,17 +562,13 @@ func (r *statusRecorder) Write(b []byte) (int, error) {
 // Unwrap lets http.ResponseController reach the connection.
 func (r *statusRecorder) Unwrap() http.ResponseWriter { return r.ResponseWriter }
 
-// responseWriteGrace is how long past a request's deadline its answer may
-// take to write.
-const responseWriteGrace = 10 * time.Second
-
 // route wraps an HTTP handler with the server's middleware: request id
 // (X-Request-Id taken or generated, echoed), bearer token and rate limit
 // when tokens are configured (all routes but the probes; 401 / 429), body
 // limit (413), panic recovery (500, counted), metrics and one log line per
 // request. limited routes also take a concurrent-requests slot (429 when
-// none is free), get the default deadline, a read deadline for the body and
-// a write deadline for the answer.
+// none is free), get the default deadline, a read deadline for the body at
+// that deadline and a write deadline for the answer RequestTimeout later.
 func (s *Server) route(route string, limited bool, h http.Handler) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		start := time.Now()
@@ -651,8 +657,8 @@ func (s *Server) route(route string, limited bool, h http.Handler) http.Handler 
 			rc := http.NewResponseController(rec)
 			_ = rc.SetReadDeadline(dl)
 			// A client that does not read the answer cannot hold the slot
-			// and the handler past the deadline plus responseWriteGrace.
-			_ = rc.SetWriteDeadline(dl.Add(responseWriteGrace))
+			// and the handler past the deadline plus as long again.
+			_ = rc.SetWriteDeadline(dl.Add(s.cfg.RequestTimeout))
 		}
 		h.ServeHTTP(rec, r)
 	})

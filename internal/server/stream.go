@@ -213,6 +213,7 @@ type sender struct {
 	s     *Server
 	ss    kinchainv1.KinematicsService_StreamCaptureServer
 	queue chan *kinchainv1.StreamCaptureResponse
+	sent  chan struct{} // a Send completed (capacity 1, never blocks the sender)
 	quit  chan struct{} // closed by stop: send nothing more
 	exit  chan struct{} // closed when the goroutine has returned
 	err   error         // the Send error that stopped it; read after exit
@@ -224,7 +225,7 @@ const senderQueue = 16
 
 func (s *Server) newSender(ss kinchainv1.KinematicsService_StreamCaptureServer) *sender {
 	o := &sender{s: s, ss: ss, queue: make(chan *kinchainv1.StreamCaptureResponse, senderQueue),
-		quit: make(chan struct{}), exit: make(chan struct{})}
+		sent: make(chan struct{}, 1), quit: make(chan struct{}), exit: make(chan struct{})}
 	go o.run()
 	return o
 }
@@ -241,6 +242,10 @@ func (o *sender) run() {
 			o.err = err
 			return
 		}
+		select {
+		case o.sent <- struct{}{}:
+		default:
+		}
 		if sum := r.GetSummary(); sum != nil {
 			o.s.metrics.samples.Add(float64(sum.GetSamples()))
 			o.s.metrics.swings.Add(float64(sum.GetSwings()))
@@ -248,9 +253,9 @@ func (o *sender) run() {
 	}
 }
 
-// enqueue queues rs in order. It fails with errStalled when the queue
-// accepts nothing for stall, with the Send error when the sender stopped,
-// or with the context's error.
+// enqueue queues rs in order. It fails with errStalled when for stall
+// neither the queue accepts a response nor the sender sends one, with the
+// Send error when the sender stopped, or with the context's error.
 func (o *sender) enqueue(ctx context.Context, rs []*kinchainv1.StreamCaptureResponse, stall time.Duration) error {
 	if len(rs) == 0 {
 		return nil
@@ -258,9 +263,13 @@ func (o *sender) enqueue(ctx context.Context, rs []*kinchainv1.StreamCaptureResp
 	t := time.NewTimer(stall)
 	defer t.Stop()
 	for _, r := range rs {
+	wait:
 		select {
 		case o.queue <- r:
 			t.Reset(stall)
+		case <-o.sent:
+			t.Reset(stall)
+			goto wait
 		case <-o.exit:
 			if err := o.failure(); err != nil {
 				return err
@@ -275,8 +284,8 @@ func (o *sender) enqueue(ctx context.Context, rs []*kinchainv1.StreamCaptureResp
 	return nil
 }
 
-// finish closes the queue and waits until everything queued is sent, for
-// at most stall.
+// finish closes the queue and waits until everything queued is sent; it
+// fails with errStalled when nothing is sent for stall.
 func (o *sender) finish(ctx context.Context, stall time.Duration) error {
 	if !o.once {
 		o.once = true
@@ -284,13 +293,17 @@ func (o *sender) finish(ctx context.Context, stall time.Duration) error {
 	}
 	t := time.NewTimer(stall)
 	defer t.Stop()
-	select {
-	case <-o.exit:
-		return o.failure()
-	case <-t.C:
-		return errStalled
-	case <-ctx.Done():
-		return ctx.Err()
+	for {
+		select {
+		case <-o.exit:
+			return o.failure()
+		case <-o.sent:
+			t.Reset(stall)
+		case <-t.C:
+			return errStalled
+		case <-ctx.Done():
+			return ctx.Err()
+		}
 	}
 }
 

@@ -146,7 +146,8 @@ func BenchmarkSwingAnalysis(b *testing.B) {
 
 // BenchmarkBatchUnmarshal times decoding one 10 ms six-segment batch from
 // its wire form, the per-batch work of the gRPC layer in front of Push
-// (for the streams-per-core estimate in NOTES-stream.md).
+// (for the streams-per-core estimate in DEVELOPERS.md, Performance,
+// "Live streams").
 func BenchmarkBatchUnmarshal(b *testing.B) {
 	_, batches, _, _ := benchStream(b, synth.Config{Segments: sixSegments})
 	req := &kinchainv1.StreamCaptureRequest{Message: &kinchainv1.StreamCaptureRequest_Batch{Batch: batches[len(batches)/2]}}

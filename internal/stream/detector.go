@@ -12,9 +12,9 @@ import (
 )
 
 // Parameters of the causal detector and of the analysis window. All are our
-// choices (see NOTES-stream.md). What the live events share with the batch
-// analysis comes from the swing package itself, so that the two cannot
-// drift apart: the still, onset, merge and finish levels (swing.StillFloor
+// choices (see DEVELOPERS.md, "Live streams"). What the live events share
+// with the batch analysis comes from the swing package itself, so that the
+// two cannot drift apart: the still, onset, merge and finish levels (swing.StillFloor
 // and the rest), the swing criteria (swing.CriteriaFor), the driver order
 // (swing.Drivers) and the pointer axis (swing.PointerAxis).
 const (

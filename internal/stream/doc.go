@@ -23,6 +23,7 @@
 //
 // Memory per stream is bounded by Limits whatever the stream's length: the
 // rings never grow past their capacity, and every other piece of state is
-// of fixed size. NOTES-stream.md gives the protocol, the event definitions,
-// the latency and memory bounds and the agreement with the unary analysis.
+// of fixed size. DEVELOPERS.md ("Live streams") gives the protocol, the
+// event definitions and the latency and memory bounds; its "Which test
+// checks what" gives the agreement with the unary analysis.
 package stream

@@ -13,8 +13,9 @@ import (
 // this package. Where the window sees exactly the samples the unary
 // analysis sees, they must agree to rounding (exact); where the analysis
 // depends on the span it is given (the still level taken from the quietest
-// stretch, fusion started at the window), NOTES-stream.md states the
-// tolerance and why, and these tests enforce it.
+// stretch, fusion started at the window), DEVELOPERS.md ("Which test
+// checks what", Live streams) states the tolerance and why, and these tests
+// enforce it.
 
 // TestStreamMatchesUnarySynthetic covers the model golfer in the
 // configurations whose window analysis must equal the unary one.
@@ -92,7 +93,7 @@ func TestStreamMatchesUnaryImpactShock(t *testing.T) {
 
 // TestStreamMatchesUnaryWithinTolerance covers data for which the window
 // analysis legitimately differs from the unary one, with the tolerances
-// NOTES-stream.md states:
+// DEVELOPERS.md states ("Which test checks what", Live streams):
 //
 //   - orientation noise: the still and onset levels come from the quietest
 //     QuietWindow of the span analysed (swing package), so a window and the

@@ -19,8 +19,8 @@ const MaxImpactLatency = 0.030
 // plane returns to its address value), that every impact is reported at
 // most MaxImpactLatency of stream time after the true impact, with an
 // event time within 2 ms of it; and the other live events within their
-// documented bounds (NOTES-stream.md): top within 60 ms, finish within
-// FinishSettle + 50 ms of stream time.
+// documented bounds (DEVELOPERS.md, "Latency bound"): top within 60 ms,
+// finish within FinishSettle + 50 ms of stream time.
 func TestImpactLatency(t *testing.T) {
 	cases := []struct {
 		name string
