@@ -6,6 +6,7 @@ import (
 	"crypto/ecdsa"
 	"crypto/elliptic"
 	"crypto/rand"
+	"crypto/tls"
 	"crypto/x509"
 	"crypto/x509/pkix"
 	"encoding/json"
@@ -38,8 +39,6 @@ import (
 	networkingv1 "k8s.io/api/networking/v1"
 	"k8s.io/apimachinery/pkg/api/resource"
 	"k8s.io/apimachinery/pkg/util/intstr"
-
-	crypto_tls "crypto/tls"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/cli"
@@ -491,7 +490,7 @@ func loggedConfig(t testing.TB, p *serveProc) startupConfig {
 func reflectionServices(addr string, useTLS bool) ([]string, error) {
 	creds := insecure.NewCredentials()
 	if useTLS {
-		creds = credentials.NewTLS(&crypto_tls.Config{InsecureSkipVerify: true})
+		creds = credentials.NewTLS(&tls.Config{InsecureSkipVerify: true})
 	}
 	cc, err := grpc.NewClient("passthrough:///"+addr, grpc.WithTransportCredentials(creds))
 	if err != nil {

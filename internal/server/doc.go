@@ -12,13 +12,14 @@
 // concurrency limits and default deadlines — are interceptors on the gRPC
 // side and the equivalent middleware on the HTTP side.
 //
-// Hardening (NOTES-hardening.md): gRPC calls are admitted in the
-// transport's tap before their message is read — bearer token (token file
-// of SHA-256 digests, constant-time comparison, per-token rate limits),
-// then a concurrency slot — so refused calls cost a header frame; requests
-// are decoded by the server itself (wire.go) with limits checked on the
-// wire before allocation; TLS with optional mutual TLS covers gRPC and
-// HTTP; a production mode requires TLS and turns reflection off.
+// Hardening (DEVELOPERS.md, Service: "Access control", "Limits", "Request
+// decoding"): gRPC calls are admitted in the transport's tap before their
+// message is read — bearer token (token file of SHA-256 digests,
+// constant-time comparison, per-token rate limits), then a concurrency
+// slot — so refused calls cost a header frame; requests are decoded by the
+// server itself (wire.go) with limits checked on the wire before
+// allocation; TLS with optional mutual TLS covers gRPC and HTTP; a
+// production mode requires TLS and turns reflection off.
 //
 // A Server is built with New, which binds its listeners (so Addrs is valid at
 // once, also for ":0"), and runs with Serve until its context is cancelled;

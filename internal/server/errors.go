@@ -17,7 +17,7 @@ import (
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
-// Error mapping (see NOTES-server.md):
+// Error mapping (see DEVELOPERS.md, Service, "Errors"):
 //
 //	*validate.Error (one or joined)  → INVALID_ARGUMENT + BadRequest field violations (HTTP 400)
 //	context.Canceled                 → CANCELED (HTTP 499)

@@ -48,7 +48,8 @@ var gatewayMarshaler = &protoJSON{runtime.JSONPb{
 // read whole (it is bounded by the body limit) and decoded at once, instead
 // of being scanned by encoding/json into a RawMessage first and parsed
 // again; an AnalyzeCaptureRequest goes through decodeRequestJSON's fast
-// path for sample arrays (see fastjson.go and NOTES-server.md).
+// path for sample arrays (see fastjson.go and DEVELOPERS.md, Service,
+// "HTTP gateway").
 type protoJSON struct{ runtime.JSONPb }
 
 // NewDecoder returns a decoder that reads r to the end and unmarshals it;
@@ -147,8 +148,9 @@ func bareCapture(b []byte) bool {
 }
 
 // newHTTPHandler builds the HTTP listener's mux: the gateway (registered
-// in-process, see NOTES-server.md for the measurement behind that choice),
-// CSV uploads on the same path, the OpenAPI document and the probes.
+// in-process, see DEVELOPERS.md, Performance, "Service", for the
+// measurement behind that choice), CSV uploads on the same path, the
+// OpenAPI document and the probes.
 func (s *Server) newHTTPHandler() error {
 	s.gw = runtime.NewServeMux(
 		runtime.WithErrorHandler(s.gatewayError),

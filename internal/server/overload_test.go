@@ -84,8 +84,8 @@ func quantile(ds []time.Duration, q float64) time.Duration {
 // none of their bodies is read — the refusal comes from the headers alone
 // (checked by counts: the gRPC received-size histogram holds only the two
 // admitted messages, the HTTP body-size histogram only zero-byte reads).
-// The latencies of the refusals are logged for NOTES-hardening.md; the
-// test asserts counts, not times.
+// The latencies of the refusals are logged for DEVELOPERS.md (Performance,
+// "Service"); the test asserts counts, not times.
 func TestAdmissionBeforeRead(t *testing.T) {
 	burst := 200
 	if testing.Short() {
@@ -232,8 +232,8 @@ func liveHeap() uint64 {
 	return ms.HeapAlloc
 }
 
-// Terms of the memory bound (NOTES-hardening.md): per admitted request
-// of M wire bytes the server holds at most
+// Terms of the memory bound (DEVELOPERS.md, Service, "Memory bound of the
+// service"): per admitted request of M wire bytes the server holds at most
 //
 //	E × M = (wireCopies + server's maxExpansion + A_engine + responseCopies) × M
 //

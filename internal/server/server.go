@@ -129,7 +129,8 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 		grpc.MaxSendMsgSize(cfg.MaxSendMsgBytes),
 		// Captures are large messages: fixed flow-control windows (instead
 		// of BDP estimation starting at 64 KiB) and larger socket buffers
-		// cut window updates and syscalls per call (NOTES-server.md).
+		// cut window updates and syscalls per call (DEVELOPERS.md,
+		// Performance, "Service").
 		grpc.InitialWindowSize(streamWindow),
 		grpc.InitialConnWindowSize(connWindow),
 		grpc.ReadBufferSize(socketBuffer),

@@ -38,7 +38,8 @@ import (
 // allocates; a message whose bound exceeds maxExpansion × its size +
 // expansionSlack is refused with INVALID_ARGUMENT (reason TOO_LARGE)
 // before it is decoded. Decode errors are INVALID_ARGUMENT naming the
-// field. NOTES-hardening.md derives the memory bound that follows.
+// field. DEVELOPERS.md (Service, "Memory bound of the service") derives
+// the memory bound that follows.
 
 // rawMessage is a received message left undecoded.
 type rawMessage []byte
