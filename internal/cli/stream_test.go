@@ -186,3 +186,50 @@ func TestRunStreamErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestRunStreamToken: against a server that requires bearer tokens, the
+// client is refused without --token (Unauthenticated) and served with it.
+func TestRunStreamToken(t *testing.T) {
+	const token = "s3cret-token-for-the-stream-test"
+	dir := t.TempDir()
+	file := filepath.Join(dir, "tokens")
+	if err := os.WriteFile(file, []byte(server.HashToken(token)+" streamtest\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	cfg := server.DefaultConfig()
+	cfg.GRPCAddr = "127.0.0.1:0"
+	cfg.HTTPAddr, cfg.MetricsAddr = "", ""
+	cfg.ShutdownGrace = 2 * time.Second
+	cfg.TokenFile = file
+	factory := func(h *kinchainv1.StreamHeader) (server.StreamSession, error) {
+		s, err := stream.NewSession(h, stream.Limits{})
+		if err != nil {
+			return nil, err
+		}
+		return s, nil
+	}
+	srv, err := server.New(cfg, engine.New(engine.Config{}), factory, nil, slog.New(slog.NewTextHandler(io.Discard, nil)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- srv.Serve(ctx) }()
+	defer func() { cancel(); <-done }()
+	addr := srv.Addrs().GRPC
+
+	t.Setenv("KINCHAIN_TOKEN", "")
+	if _, _, err := runStream("--addr", addr, "--pace", "0", "--demo"); err == nil || !strings.Contains(err.Error(), "Unauthenticated") {
+		t.Errorf("without a token: %v, want Unauthenticated", err)
+	}
+	if _, _, err := runStream("--addr", addr, "--pace", "0", "--token", "wrong", "--demo"); err == nil || !strings.Contains(err.Error(), "Unauthenticated") {
+		t.Errorf("with a wrong token: %v, want Unauthenticated", err)
+	}
+	out, _, err := runStream("--addr", addr, "--pace", "0", "--token", token, "--demo")
+	if err != nil || !strings.Contains(out, "impact") {
+		t.Errorf("with the token: %v\n%s", err, out)
+	}
+	if _, _, err := runStream("--addr", addr, "--cert", "x.pem", "--demo"); err == nil || !strings.Contains(err.Error(), "--cert and --key") {
+		t.Errorf("--cert without --key: %v", err)
+	}
+}
