@@ -209,7 +209,7 @@ func runServe(ctx context.Context, args []string, lookupEnv func(string) (string
 		slog.String("version", version.Version), slog.String("commit", version.Commit),
 		slog.String("log_level", f.logLevel.String()),
 		slog.Any("config", f.cfg),
-		slog.Group("bound", slog.String("grpc", a.GRPC), slog.String("http", a.HTTP), slog.String("metrics", a.Metrics)))
+		slog.Group("bound", slog.String("grpc", a.GRPC), slog.String("http", a.HTTP), slog.String("metrics", a.Metrics), slog.String("health", a.Health)))
 	if started != nil {
 		started(srv)
 	}
