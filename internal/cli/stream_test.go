@@ -24,11 +24,20 @@ import (
 // streamServer runs the kinchain gRPC service on a loopback port, with
 // stream sessions of limits lim, until the test ends.
 func streamServer(t *testing.T, lim stream.Limits) string {
+	return streamServerWith(t, lim, nil)
+}
+
+// streamServerWith is streamServer with the server configuration changed
+// by edit first.
+func streamServerWith(t *testing.T, lim stream.Limits, edit func(*server.Config)) string {
 	t.Helper()
 	cfg := server.DefaultConfig()
 	cfg.GRPCAddr = "127.0.0.1:0"
 	cfg.HTTPAddr, cfg.MetricsAddr = "", ""
 	cfg.ShutdownGrace = 2 * time.Second
+	if edit != nil {
+		edit(&cfg)
+	}
 	factory := func(h *kinchainv1.StreamHeader) (server.StreamSession, error) {
 		s, err := stream.NewSession(h, lim)
 		if err != nil {
@@ -196,27 +205,7 @@ func TestRunStreamToken(t *testing.T) {
 	if err := os.WriteFile(file, []byte(server.HashToken(token)+" streamtest\n"), 0o600); err != nil {
 		t.Fatal(err)
 	}
-	cfg := server.DefaultConfig()
-	cfg.GRPCAddr = "127.0.0.1:0"
-	cfg.HTTPAddr, cfg.MetricsAddr = "", ""
-	cfg.ShutdownGrace = 2 * time.Second
-	cfg.TokenFile = file
-	factory := func(h *kinchainv1.StreamHeader) (server.StreamSession, error) {
-		s, err := stream.NewSession(h, stream.Limits{})
-		if err != nil {
-			return nil, err
-		}
-		return s, nil
-	}
-	srv, err := server.New(cfg, engine.New(engine.Config{}), factory, nil, slog.New(slog.NewTextHandler(io.Discard, nil)))
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- srv.Serve(ctx) }()
-	defer func() { cancel(); <-done }()
-	addr := srv.Addrs().GRPC
+	addr := streamServerWith(t, stream.Limits{}, func(c *server.Config) { c.TokenFile = file })
 
 	t.Setenv("KINCHAIN_TOKEN", "")
 	if _, _, err := runStream("--addr", addr, "--pace", "0", "--demo"); err == nil || !strings.Contains(err.Error(), "Unauthenticated") {

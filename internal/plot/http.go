@@ -260,26 +260,7 @@ func mapError(err error) error {
 	case errors.Is(err, context.DeadlineExceeded):
 		return status.Error(codes.DeadlineExceeded, "deadline exceeded before the analysis finished")
 	}
-	var ves []*validate.Error
-	var walk func(error)
-	walk = func(e error) {
-		if e == nil || len(ves) >= 100 {
-			return
-		}
-		if ve, ok := e.(*validate.Error); ok {
-			ves = append(ves, ve)
-			return
-		}
-		switch u := e.(type) {
-		case interface{ Unwrap() []error }:
-			for _, x := range u.Unwrap() {
-				walk(x)
-			}
-		case interface{ Unwrap() error }:
-			walk(u.Unwrap())
-		}
-	}
-	walk(err)
+	ves := validate.Errors(err, 100)
 	if len(ves) == 0 {
 		return status.Error(codes.Internal, "internal error")
 	}

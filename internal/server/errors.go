@@ -122,27 +122,7 @@ func (s *Server) toStatus(ctx context.Context, err error, sc scope) error {
 // validationErrors returns the *validate.Error values in err's tree, in
 // order (errors.Join and wrapping are followed).
 func validationErrors(err error) []*validate.Error {
-	var out []*validate.Error
-	var walk func(error)
-	walk = func(e error) {
-		if e == nil || len(out) >= maxViolations {
-			return
-		}
-		if ve, ok := e.(*validate.Error); ok {
-			out = append(out, ve)
-			return
-		}
-		switch u := e.(type) {
-		case interface{ Unwrap() []error }:
-			for _, x := range u.Unwrap() {
-				walk(x)
-			}
-		case interface{ Unwrap() error }:
-			walk(u.Unwrap())
-		}
-	}
-	walk(err)
-	return out
+	return validate.Errors(err, maxViolations)
 }
 
 // maxViolations bounds the field violations put in one status, so that a

@@ -157,3 +157,29 @@ type Locator interface {
 func newErr(field string, r Reason, detail string) *Error {
 	return &Error{Field: field, Sample: -1, Reason: r, Detail: detail}
 }
+
+// Errors returns the *Error values in err's tree, in order, at most max of
+// them (max ≤ 0: no bound); errors.Join and wrapping are followed.
+func Errors(err error, max int) []*Error {
+	var out []*Error
+	var walk func(error)
+	walk = func(e error) {
+		if e == nil || (max > 0 && len(out) >= max) {
+			return
+		}
+		if ve, ok := e.(*Error); ok {
+			out = append(out, ve)
+			return
+		}
+		switch u := e.(type) {
+		case interface{ Unwrap() []error }:
+			for _, x := range u.Unwrap() {
+				walk(x)
+			}
+		case interface{ Unwrap() error }:
+			walk(u.Unwrap())
+		}
+	}
+	walk(err)
+	return out
+}
