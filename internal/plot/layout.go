@@ -207,14 +207,20 @@ func (v *view) drawKey(c draw.Canvas) {
 		}
 	}
 
-	if order := v.sw.GetPeakOrder(); len(order) > 0 {
+	// The order of the segments drawn (the whole order is in the report).
+	var names []string
+	for _, s := range v.sw.GetPeakOrder() {
+		for _, cv := range v.curves {
+			if cv.Segment == s {
+				names = append(names, segmentName(s))
+				break
+			}
+		}
+	}
+	if len(names) > 0 {
 		y -= 8
 		c.FillText(head, vg.Point{X: x0, Y: y}, "Order of peaks")
 		y -= 15
-		names := make([]string, len(order))
-		for i, s := range order {
-			names[i] = segmentName(s)
-		}
 		for _, l := range wrap(body, strings.Join(names, " › "), x1-x0) {
 			c.FillText(body, vg.Point{X: x0, Y: y}, l)
 			y -= 12
