@@ -6,6 +6,7 @@ import (
 	"slices"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -87,11 +88,11 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 	if t.GetMounting() != nil {
 		return batchErr(i, "mounting", -1, validate.ReasonBadValue, "mountings go in the header (header.mountings), not in batches")
 	}
-	a := trackArrays(t)
-	n := len(a[aTime])
-	for k := 1; k < nArrays; k++ {
+	a := capture.TrackArrays(t)
+	n := len(a[capture.ArrayTime])
+	for k := 1; k < capture.NumArrays; k++ {
 		if m := len(a[k]); m != 0 && m != n {
-			return batchErr(i, arrayNames[k], -1, validate.ReasonLengthMismatch, "%d entries, but time_s has %d", m, n)
+			return batchErr(i, capture.ArrayNames[k], -1, validate.ReasonLengthMismatch, "%d entries, but time_s has %d", m, n)
 		}
 	}
 	if n == 0 {
@@ -101,7 +102,7 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 		return batchErr(i, "time_s", -1, validate.ReasonTooLarge,
 			"%d samples of %s in one batch, more than the %d (%s s at the header rate) a batch may carry per segment", n, name, lim, num(s.lim.MaxBatchSeconds))
 	}
-	var set columnSet = 1 << aTime
+	var set columnSet = 1 << capture.ArrayTime
 	for _, g := range groups {
 		have, missing := 0, -1
 		for k := g.first; k < g.first+g.n; k++ {
@@ -117,10 +118,10 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 				set |= 1 << k
 			}
 		case have > 0:
-			return batchErr(i, arrayNames[missing], -1, validate.ReasonMissingField, "empty while other %s arrays are set", g.what)
+			return batchErr(i, capture.ArrayNames[missing], -1, validate.ReasonMissingField, "empty while other %s arrays are set", g.what)
 		}
 	}
-	hasQ, hasG, hasA := set.has(aQw), set.has(aGx), set.has(aAx)
+	hasQ, hasG, hasA := set.has(capture.ArrayQw), set.has(capture.ArrayGx), set.has(capture.ArrayAx)
 	switch {
 	case hasQ:
 	case hasG && !hasA:
@@ -131,13 +132,13 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 		return batchErr(i, "qw", -1, validate.ReasonMissingField, "%s has no orientation: give quaternions (qw, qx, qy, qz) or raw inertial readings (gx, gy, gz and ax, ay, az)", name)
 	}
 	if st.ring != nil && set != st.ring.set {
-		for k := 1; k < nArrays; k++ {
+		for k := 1; k < capture.NumArrays; k++ {
 			switch {
 			case st.ring.set.has(k) && !set.has(k):
-				return batchErr(i, arrayNames[k], -1, validate.ReasonMissingField,
+				return batchErr(i, capture.ArrayNames[k], -1, validate.ReasonMissingField,
 					"empty, but earlier batches of %s had it; a segment sends the same arrays for the whole stream", name)
 			case !st.ring.set.has(k) && set.has(k):
-				return batchErr(i, arrayNames[k], -1, validate.ReasonBadValue,
+				return batchErr(i, capture.ArrayNames[k], -1, validate.ReasonBadValue,
 					"earlier batches of %s did not have it; a segment sends the same arrays for the whole stream", name)
 			}
 		}
@@ -150,7 +151,7 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 		}
 	}
 
-	ts := a[aTime]
+	ts := a[capture.ArrayTime]
 	prev, have := st.last, st.n > 0
 	for k, x := range ts {
 		if !finite(x) {
@@ -177,9 +178,9 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 		}
 	}
 
-	var present [nArrays]int
+	var present [capture.NumArrays]int
 	np := 0
-	for k := 1; k < nArrays; k++ {
+	for k := 1; k < capture.NumArrays; k++ {
 		if set.has(k) {
 			present[np] = k
 			np++
@@ -191,11 +192,11 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 	for k := 0; k < n; k++ {
 		for _, j := range present[:np] {
 			if x := a[j][k]; !finite(x) {
-				return batchErr(i, arrayNames[j], k, validate.ReasonNonFinite, "not finite (%s)", num(x))
+				return batchErr(i, capture.ArrayNames[j], k, validate.ReasonNonFinite, "not finite (%s)", num(x))
 			}
 		}
 		if hasQ {
-			w, x, y, z := a[aQw][k], a[aQx][k], a[aQy][k], a[aQz][k]
+			w, x, y, z := a[capture.ArrayQw][k], a[capture.ArrayQx][k], a[capture.ArrayQy][k], a[capture.ArrayQz][k]
 			norm := math.Sqrt(w*w + x*x + y*y + z*z)
 			switch {
 			case norm < validate.ZeroNorm:
@@ -206,15 +207,15 @@ func (s *Session) checkTrack(i int, t *kinchainv1.Track, st *segState) error {
 			}
 		}
 		if hasG {
-			for j := aGx; j <= aGz; j++ {
+			for j := capture.ArrayGx; j <= capture.ArrayGz; j++ {
 				if c := a[j][k]; math.Abs(c) > validate.MaxAngularRate {
-					return batchErr(i, arrayNames[j], k, validate.ReasonImplausible,
+					return batchErr(i, capture.ArrayNames[j], k, validate.ReasonImplausible,
 						"%s rad/s is beyond any gyroscope's range (limit %s rad/s); is it in °/s? kinchain wants rad/s", num(c), num(validate.MaxAngularRate))
 				}
 			}
 		}
 		if hasA && !st.accelChecked && nm < accelCheckSamples {
-			x, y, z := a[aAx][k], a[aAy][k], a[aAz][k]
+			x, y, z := a[capture.ArrayAx][k], a[capture.ArrayAy][k], a[capture.ArrayAz][k]
 			mags[nm] = math.Sqrt(x*x + y*y + z*z)
 			nm++
 			if nm == accelCheckSamples {

@@ -9,6 +9,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -117,14 +118,14 @@ const maxBatches = 100_000_000
 
 // slice returns samples [lo, hi) of t as a new track without mounting.
 func slice(t *kinchainv1.Track, lo, hi int) *kinchainv1.Track {
-	a := trackArrays(t)
-	var out [nArrays][]float64
+	a := capture.TrackArrays(t)
+	var out [capture.NumArrays][]float64
 	for k := range a {
 		if len(a[k]) > 0 {
 			out[k] = append([]float64(nil), a[k][lo:hi]...)
 		}
 	}
 	tr := &kinchainv1.Track{Segment: t.GetSegment()}
-	setTrackArrays(tr, &out)
+	capture.SetTrackArrays(tr, &out)
 	return tr
 }

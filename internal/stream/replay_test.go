@@ -8,6 +8,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/synth"
 )
 
@@ -37,11 +38,11 @@ func TestSplitReassembles(t *testing.T) {
 					g = &kinchainv1.Track{Segment: tr.Segment}
 					got[tr.Segment] = g
 				}
-				a, ga := trackArrays(tr), trackArrays(g)
+				a, ga := capture.TrackArrays(tr), capture.TrackArrays(g)
 				for j := range a {
 					ga[j] = append(ga[j], a[j]...)
 				}
-				setTrackArrays(g, &ga)
+				capture.SetTrackArrays(g, &ga)
 			}
 			k++
 			return nil

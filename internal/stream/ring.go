@@ -1,15 +1,20 @@
 package stream
 
-import "sort"
+import (
+	"sort"
+
+	"github.com/kinchain/kinchain/internal/capture"
+)
 
 // ring holds the newest samples of one segment in fixed-capacity circular
-// columns, one per array the segment sends (column aTime always). Storage
+// columns, one per array the segment sends (column capture.ArrayTime always).
+// Storage
 // grows by doubling as samples arrive until it reaches the capacity, and is
 // never grown past it: from then on each new sample overwrites the oldest.
 type ring struct {
-	cols  [nArrays][]float64 // nil for arrays the segment does not send
+	cols  [capture.NumArrays][]float64 // nil for arrays the segment does not send
 	set   columnSet
-	have  [nArrays]uint8 // the indices of the non-nil columns
+	have  [capture.NumArrays]uint8 // the indices of the non-nil columns
 	nhave int
 	limit int   // capacity in samples
 	start int   // physical index of the oldest sample
@@ -23,9 +28,9 @@ const minRingAlloc = 1024
 // newRing returns an empty ring for the arrays in set, holding at most limit
 // samples.
 func newRing(set columnSet, limit int) *ring {
-	r := &ring{set: set | 1<<aTime, limit: limit}
+	r := &ring{set: set | 1<<capture.ArrayTime, limit: limit}
 	alloc := min(limit, minRingAlloc)
-	for k := 0; k < nArrays; k++ {
+	for k := 0; k < capture.NumArrays; k++ {
 		if r.set.has(k) {
 			r.cols[k] = make([]float64, alloc)
 			r.have[r.nhave] = uint8(k)
@@ -36,7 +41,7 @@ func newRing(set columnSet, limit int) *ring {
 }
 
 // size returns the allocated samples per column.
-func (r *ring) size() int { return len(r.cols[aTime]) }
+func (r *ring) size() int { return len(r.cols[capture.ArrayTime]) }
 
 // bytes returns the memory held by the columns, bytes.
 func (r *ring) bytes() int { return r.size() * 8 * r.set.count() }
@@ -56,7 +61,7 @@ func (r *ring) grow() {
 
 // push appends sample j of the arrays a (indexed by the a* constants; only
 // the ring's columns are read).
-func (r *ring) push(a *[nArrays][]float64, j int) {
+func (r *ring) push(a *[capture.NumArrays][]float64, j int) {
 	if r.n == r.size() && r.size() < r.limit {
 		r.grow()
 	}
@@ -93,7 +98,7 @@ func (r *ring) phys(i int) int {
 func (r *ring) at(k, i int) float64 { return r.cols[k][r.phys(i)] }
 
 // time returns the time of logical sample i.
-func (r *ring) time(i int) float64 { return r.cols[aTime][r.phys(i)] }
+func (r *ring) time(i int) float64 { return r.cols[capture.ArrayTime][r.phys(i)] }
 
 // first and last return the oldest and newest sample times; ok is false
 // when the ring is empty.
@@ -118,8 +123,8 @@ func (r *ring) search(t float64) int {
 
 // copyWindow copies the samples with t0 ≤ time ≤ t1 into fresh arrays
 // (nil for the columns the ring lacks).
-func (r *ring) copyWindow(t0, t1 float64) [nArrays][]float64 {
-	var out [nArrays][]float64
+func (r *ring) copyWindow(t0, t1 float64) [capture.NumArrays][]float64 {
+	var out [capture.NumArrays][]float64
 	i0 := r.search(t0)
 	i1 := r.search(t1)
 	if i1 < r.n && r.time(i1) == t1 {

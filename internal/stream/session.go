@@ -11,6 +11,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/condition"
 	"github.com/kinchain/kinchain/internal/engine"
 	"github.com/kinchain/kinchain/internal/kinematics"
@@ -226,11 +227,11 @@ func (s *Session) Push(b *kinchainv1.SampleBatch) ([]*kinchainv1.StreamCaptureRe
 // take appends the samples of track t to segment k and runs the detector.
 func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptureResponse) []*kinchainv1.StreamCaptureResponse {
 	st := s.segs[k]
-	a := trackArrays(t)
-	n := len(a[aTime])
+	a := capture.TrackArrays(t)
+	n := len(a[capture.ArrayTime])
 	if st.ring == nil {
-		var set columnSet = 1 << aTime
-		for j := 1; j < nArrays; j++ {
+		var set columnSet = 1 << capture.ArrayTime
+		for j := 1; j < capture.NumArrays; j++ {
 			if len(a[j]) > 0 {
 				set |= 1 << j
 			}
@@ -241,10 +242,10 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 			s.newDetector(st)
 		}
 	}
-	hasQ, hasA := st.ring.set.has(aQw), st.ring.set.has(aAx)
+	hasQ, hasA := st.ring.set.has(capture.ArrayQw), st.ring.set.has(capture.ArrayAx)
 	isDriver, isArm := k == s.driver && s.det != nil, k == s.arm
 	for j := 0; j < n; j++ {
-		tj := a[aTime][j]
+		tj := a[capture.ArrayTime][j]
 		st.ring.push(&a, j)
 		if st.n == 0 {
 			st.first = tj
@@ -255,7 +256,7 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 		st.last = tj
 		var q quat.Number
 		if hasQ {
-			q = quat.Number{Real: a[aQw][j], Imag: a[aQx][j], Jmag: a[aQy][j], Kmag: a[aQz][j]}
+			q = quat.Number{Real: a[capture.ArrayQw][j], Imag: a[capture.ArrayQx][j], Jmag: a[capture.ArrayQy][j], Kmag: a[capture.ArrayQz][j]}
 			norm := math.Sqrt(q.Real*q.Real + q.Imag*q.Imag + q.Jmag*q.Jmag + q.Kmag*q.Kmag)
 			if renormCounted(norm) {
 				st.stats.renorm++
@@ -272,7 +273,7 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 			}
 		}
 		if hasA && !st.accelChecked {
-			x, y, z := a[aAx][j], a[aAy][j], a[aAz][j]
+			x, y, z := a[capture.ArrayAx][j], a[capture.ArrayAy][j], a[capture.ArrayAz][j]
 			st.accelMags[st.accelN] = math.Sqrt(x*x + y*y + z*z)
 			st.accelN++
 			if st.accelN == accelCheckSamples {
@@ -284,7 +285,7 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 		}
 		if isDriver {
 			if s.det.gyroOnly {
-				s.det.stepGyro(tj, r3.Vec{X: a[aGx][j], Y: a[aGy][j], Z: a[aGz][j]})
+				s.det.stepGyro(tj, r3.Vec{X: a[capture.ArrayGx][j], Y: a[capture.ArrayGy][j], Z: a[capture.ArrayGz][j]})
 			} else {
 				s.det.step(tj, q)
 			}
@@ -295,8 +296,8 @@ func (s *Session) take(k int, t *kinchainv1.Track, out []*kinchainv1.StreamCaptu
 	}
 	s.samples += int64(n)
 	if n > 0 {
-		if !s.haveTime || a[aTime][0] < s.first {
-			s.first = a[aTime][0]
+		if !s.haveTime || a[capture.ArrayTime][0] < s.first {
+			s.first = a[capture.ArrayTime][0]
 		}
 		if !s.haveTime || st.last > s.last {
 			s.last = st.last
@@ -321,7 +322,7 @@ func (s *Session) newDetector(st *segState) {
 	if st.mount != nil {
 		axis = rot.Rotate(rot.Conj(*st.mount), axis)
 	}
-	gyroOnly := !st.ring.set.has(aQw)
+	gyroOnly := !st.ring.set.has(capture.ArrayQw)
 	d, err := newDetector(st.seg, s.rate, s.cutoff(), axis, gyroOnly, st.stats.bound)
 	if err != nil {
 		// The cutoff is below 0.45 × rate and positive; a design failure
@@ -438,7 +439,7 @@ func (s *Session) summary() *kinchainv1.StreamSummary {
 		if st.n == 0 {
 			continue
 		}
-		sum.Quality.Tracks = append(sum.Quality.Tracks, st.stats.quality(st.seg, st.n, !st.ring.set.has(aQw)))
+		sum.Quality.Tracks = append(sum.Quality.Tracks, st.stats.quality(st.seg, st.n, !st.ring.set.has(capture.ArrayQw)))
 		ws = append(ws, st.stats.warnings(st.seg, st.n, top)...)
 	}
 	if s.driver < 0 {
@@ -571,11 +572,11 @@ func (s *Session) analyse(p *pending) *kinchainv1.SwingReport {
 					p.index, segmentName(st.seg), f, p.t0)})
 		}
 		arr := st.ring.copyWindow(p.t0, p.t1)
-		if len(arr[aTime]) < minSamples {
+		if len(arr[capture.ArrayTime]) < minSamples {
 			continue
 		}
 		tr := &kinchainv1.Track{Segment: st.seg}
-		setTrackArrays(tr, &arr)
+		capture.SetTrackArrays(tr, &arr)
 		if st.mount != nil {
 			m := st.mount
 			tr.Mounting = &kinchainv1.Quaternion{W: m.Real, X: m.Imag, Y: m.Jmag, Z: m.Kmag}

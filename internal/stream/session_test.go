@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/synth"
 	"github.com/kinchain/kinchain/internal/validate"
 )
@@ -152,13 +153,13 @@ func TestSwingReportedAtClose(t *testing.T) {
 		for n < len(tr.TimeS) && tr.TimeS[n] <= cut {
 			n++
 		}
-		a := trackArrays(tr)
+		a := capture.TrackArrays(tr)
 		for k := range a {
 			if len(a[k]) > 0 {
 				a[k] = a[k][:n]
 			}
 		}
-		setTrackArrays(tr, &a)
+		capture.SetTrackArrays(tr, &a)
 	}
 	want := unary(t, capt, nil)
 	got := replay(t, capt, nil, 0.010, Limits{})

@@ -43,49 +43,13 @@ const (
 	MinMedianAccel = 2.0
 )
 
-// arrayNames are the Track arrays in field order; groups index into it.
-var arrayNames = [...]string{
-	"time_s", "qw", "qx", "qy", "qz", "gx", "gy", "gz", "ax", "ay", "az",
-	"mx", "my", "mz", "px", "py", "pz",
-}
-
-// Array indices into trackArrays' result.
-const (
-	aTime = iota
-	aQw
-	aQx
-	aQy
-	aQz
-	aGx
-	aGy
-	aGz
-	aAx
-	aAy
-	aAz
-	aMx
-	aMy
-	aMz
-	aPx
-	aPy
-	aPz
-	nArrays
-)
-
 // groups are the arrays that must be present together.
 var groups = [...][]int{
-	{aQw, aQx, aQy, aQz},
-	{aGx, aGy, aGz},
-	{aAx, aAy, aAz},
-	{aMx, aMy, aMz},
-	{aPx, aPy, aPz},
-}
-
-func trackArrays(t *kinchainv1.Track) [nArrays][]float64 {
-	return [nArrays][]float64{
-		t.GetTimeS(), t.GetQw(), t.GetQx(), t.GetQy(), t.GetQz(),
-		t.GetGx(), t.GetGy(), t.GetGz(), t.GetAx(), t.GetAy(), t.GetAz(),
-		t.GetMx(), t.GetMy(), t.GetMz(), t.GetPx(), t.GetPy(), t.GetPz(),
-	}
+	{capture.ArrayQw, capture.ArrayQx, capture.ArrayQy, capture.ArrayQz},
+	{capture.ArrayGx, capture.ArrayGy, capture.ArrayGz},
+	{capture.ArrayAx, capture.ArrayAy, capture.ArrayAz},
+	{capture.ArrayMx, capture.ArrayMy, capture.ArrayMz},
+	{capture.ArrayPx, capture.ArrayPy, capture.ArrayPz},
 }
 
 // segmentName returns the lower-case name of s ("lead_upper_arm").
@@ -269,14 +233,14 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 	}
 	seen[seg] = i
 	name := segmentName(seg)
-	a := trackArrays(t)
-	n := len(a[aTime])
+	a := capture.TrackArrays(t)
+	n := len(a[capture.ArrayTime])
 	if n == 0 {
 		return v.trackErr(i, "time_s", ReasonEmpty, name+" has no samples")
 	}
-	for k := 1; k < nArrays; k++ {
+	for k := 1; k < capture.NumArrays; k++ {
 		if m := len(a[k]); m != 0 && m != n {
-			return v.trackErr(i, arrayNames[k], ReasonLengthMismatch, fmt.Sprintf("%d entries, but time_s has %d", m, n))
+			return v.trackErr(i, capture.ArrayNames[k], ReasonLengthMismatch, fmt.Sprintf("%d entries, but time_s has %d", m, n))
 		}
 	}
 	for _, g := range groups {
@@ -284,16 +248,16 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 		missing := -1
 		for _, k := range g {
 			if len(a[k]) > 0 {
-				set = append(set, arrayNames[k])
+				set = append(set, capture.ArrayNames[k])
 			} else if missing < 0 {
 				missing = k
 			}
 		}
 		if len(set) > 0 && missing >= 0 {
-			return v.trackErr(i, arrayNames[missing], ReasonMissingField, "empty while "+strings.Join(set, ", ")+" are set")
+			return v.trackErr(i, capture.ArrayNames[missing], ReasonMissingField, "empty while "+strings.Join(set, ", ")+" are set")
 		}
 	}
-	hasQ, hasG, hasA := len(a[aQw]) > 0, len(a[aGx]) > 0, len(a[aAx]) > 0
+	hasQ, hasG, hasA := len(a[capture.ArrayQw]) > 0, len(a[capture.ArrayGx]) > 0, len(a[capture.ArrayAx]) > 0
 	switch {
 	case hasQ:
 	case hasG && !hasA:
@@ -306,7 +270,7 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 	if n < v.lim.MinSamples {
 		return v.trackErr(i, "time_s", ReasonTooFewSamples, fmt.Sprintf("%s has %s; the analysis needs at least %d", name, samples(n), v.lim.MinSamples))
 	}
-	ts := a[aTime]
+	ts := a[capture.ArrayTime]
 	for k, x := range ts {
 		if !finite(x) {
 			return v.sampleErr(i, "time_s", k, ReasonNonFinite, "not finite ("+num(x)+")")
@@ -339,9 +303,9 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 		return nil
 	}
 	out.Gyro, out.Accel = vec(hasG), vec(hasA)
-	out.Mag, out.Pos = vec(len(a[aMx]) > 0), vec(len(a[aPx]) > 0)
-	present := make([]int, 0, nArrays-1)
-	for k := 1; k < nArrays; k++ {
+	out.Mag, out.Pos = vec(len(a[capture.ArrayMx]) > 0), vec(len(a[capture.ArrayPx]) > 0)
+	present := make([]int, 0, capture.NumArrays-1)
+	for k := 1; k < capture.NumArrays; k++ {
 		if len(a[k]) > 0 {
 			present = append(present, k)
 		}
@@ -349,11 +313,11 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 	for k := 0; k < n; k++ {
 		for _, j := range present {
 			if x := a[j][k]; !finite(x) {
-				return v.sampleErr(i, arrayNames[j], k, ReasonNonFinite, "not finite ("+num(x)+")")
+				return v.sampleErr(i, capture.ArrayNames[j], k, ReasonNonFinite, "not finite ("+num(x)+")")
 			}
 		}
 		if hasQ {
-			q := quat.Number{Real: a[aQw][k], Imag: a[aQx][k], Jmag: a[aQy][k], Kmag: a[aQz][k]}
+			q := quat.Number{Real: a[capture.ArrayQw][k], Imag: a[capture.ArrayQx][k], Jmag: a[capture.ArrayQy][k], Kmag: a[capture.ArrayQz][k]}
 			norm := math.Sqrt(q.Real*q.Real + q.Imag*q.Imag + q.Jmag*q.Jmag + q.Kmag*q.Kmag)
 			switch d := math.Abs(norm - 1); {
 			case norm < ZeroNorm:
@@ -367,22 +331,22 @@ func (v *checker) track(i int, t *kinchainv1.Track, seen map[kinchainv1.Segment]
 			out.Q[k] = quat.Number{Real: q.Real * s, Imag: q.Imag * s, Jmag: q.Jmag * s, Kmag: q.Kmag * s}
 		}
 		if hasG {
-			g := r3.Vec{X: a[aGx][k], Y: a[aGy][k], Z: a[aGz][k]}
+			g := r3.Vec{X: a[capture.ArrayGx][k], Y: a[capture.ArrayGy][k], Z: a[capture.ArrayGz][k]}
 			for j, c := range [3]float64{g.X, g.Y, g.Z} {
 				if math.Abs(c) > MaxAngularRate {
-					return v.sampleErr(i, arrayNames[aGx+j], k, ReasonImplausible, fmt.Sprintf("%s rad/s is beyond any gyroscope's range (limit %s rad/s); is it in °/s? kinchain wants rad/s", num(c), num(MaxAngularRate)))
+					return v.sampleErr(i, capture.ArrayNames[capture.ArrayGx+j], k, ReasonImplausible, fmt.Sprintf("%s rad/s is beyond any gyroscope's range (limit %s rad/s); is it in °/s? kinchain wants rad/s", num(c), num(MaxAngularRate)))
 				}
 			}
 			out.Gyro[k] = g
 		}
 		if hasA {
-			out.Accel[k] = r3.Vec{X: a[aAx][k], Y: a[aAy][k], Z: a[aAz][k]}
+			out.Accel[k] = r3.Vec{X: a[capture.ArrayAx][k], Y: a[capture.ArrayAy][k], Z: a[capture.ArrayAz][k]}
 		}
 		if out.Mag != nil {
-			out.Mag[k] = r3.Vec{X: a[aMx][k], Y: a[aMy][k], Z: a[aMz][k]}
+			out.Mag[k] = r3.Vec{X: a[capture.ArrayMx][k], Y: a[capture.ArrayMy][k], Z: a[capture.ArrayMz][k]}
 		}
 		if out.Pos != nil {
-			out.Pos[k] = r3.Vec{X: a[aPx][k], Y: a[aPy][k], Z: a[aPz][k]}
+			out.Pos[k] = r3.Vec{X: a[capture.ArrayPx][k], Y: a[capture.ArrayPy][k], Z: a[capture.ArrayPz][k]}
 		}
 	}
 	if hasA {
