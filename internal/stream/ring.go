@@ -7,10 +7,9 @@ import (
 )
 
 // ring holds the newest samples of one segment in fixed-capacity circular
-// columns, one per array the segment sends (column capture.ArrayTime always).
-// Storage
-// grows by doubling as samples arrive until it reaches the capacity, and is
-// never grown past it: from then on each new sample overwrites the oldest.
+// columns, one per array the segment sends (column capture.ArrayTime
+// always). Storage grows by doubling as samples arrive until it reaches the
+// capacity, and is never grown past it: from then on each new sample overwrites the oldest.
 type ring struct {
 	cols  [capture.NumArrays][]float64 // nil for arrays the segment does not send
 	set   columnSet
