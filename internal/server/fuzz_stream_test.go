@@ -2,16 +2,13 @@ package server
 
 import (
 	"context"
-	"crypto/sha256"
 	"encoding/json"
 	"errors"
-	"fmt"
 	"io"
 	"log/slog"
 	"os"
 	"path/filepath"
 	"testing"
-	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
@@ -146,15 +143,6 @@ func FuzzStream(f *testing.F) {
 	f.Fuzz(func(t *testing.T, b []byte) {
 		if len(b) > 1<<16 {
 			return // bounded time per input
-		}
-		// A stall watchdog: an input still running after 5 s is written
-		// to $KINCHAIN_FUZZ_STALL_DIR (when set) so that it can be
-		// replayed; the fuzzer itself saves nothing for a stall.
-		if dir := os.Getenv("KINCHAIN_FUZZ_STALL_DIR"); dir != "" {
-			w := time.AfterFunc(5*time.Second, func() {
-				_ = os.WriteFile(filepath.Join(dir, fmt.Sprintf("stall-%x", sha256.Sum256(b))), b, 0o644)
-			})
-			defer w.Stop()
 		}
 		fs := &fuzzStream{ctx: context.Background(), in: splitMessages(b)}
 		err := s.runStream(fs)
