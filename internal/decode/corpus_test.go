@@ -1,19 +1,17 @@
 package decode_test
 
 import (
-	"bufio"
 	"errors"
 	"os"
 	"path/filepath"
 	"slices"
-	"strconv"
-	"strings"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/decode"
+	"github.com/kinchain/kinchain/internal/decode/decodetest"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -26,55 +24,9 @@ type badCase struct {
 }
 
 func readCases(t testing.TB) []badCase {
-	f, err := os.Open(filepath.Join(badDir, "cases.tsv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
 	var out []badCase
-	sc := bufio.NewScanner(f)
-	for n := 1; sc.Scan(); n++ {
-		l := sc.Text()
-		if l == "" || l[0] == '#' {
-			continue
-		}
-		c := strings.Split(l, "\t")
-		if len(c) != 7 {
-			t.Fatalf("cases.tsv:%d: %d columns", n, len(c))
-		}
-		bc := badCase{file: c[0], decoder: c[1], reason: validate.Reason(c[3]), field: c[4]}
-		if bc.field == "-" {
-			bc.field = ""
-		}
-		if bc.line, err = strconv.Atoi(c[5]); err != nil {
-			t.Fatalf("cases.tsv:%d: line %q", n, c[5])
-		}
-		if bc.sample, err = strconv.Atoi(c[6]); err != nil {
-			t.Fatalf("cases.tsv:%d: sample %q", n, c[6])
-		}
-		if c[2] != "-" {
-			for _, kv := range strings.Split(c[2], ",") {
-				k, v, _ := strings.Cut(kv, "=")
-				x, err := strconv.Atoi(v)
-				if err != nil {
-					t.Fatalf("cases.tsv:%d: limit %q", n, kv)
-				}
-				switch k {
-				case "max_samples":
-					bc.lim.MaxSamples = x
-				case "max_tracks":
-					bc.lim.MaxTracks = x
-				case "max_bytes":
-					bc.lim.MaxBytes = x
-				default:
-					t.Fatalf("cases.tsv:%d: unknown limit %q", n, k)
-				}
-			}
-		}
-		out = append(out, bc)
-	}
-	if err := sc.Err(); err != nil {
-		t.Fatal(err)
+	for _, c := range decodetest.Cases(t) {
+		out = append(out, badCase{file: c.File, decoder: c.Decoder, lim: c.Lim, reason: c.Reason, field: c.Field, line: c.Line, sample: c.Sample})
 	}
 	return out
 }

@@ -1,7 +1,6 @@
 package server_test
 
 import (
-	"bufio"
 	"bytes"
 	"context"
 	"fmt"
@@ -9,7 +8,6 @@ import (
 	"net/http"
 	"os"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"testing"
 
@@ -24,6 +22,7 @@ import (
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/decode"
+	"github.com/kinchain/kinchain/internal/decode/decodetest"
 	"github.com/kinchain/kinchain/internal/engine"
 	"github.com/kinchain/kinchain/internal/validate"
 )
@@ -46,52 +45,9 @@ type corpusCase struct {
 
 func readCorpus(t *testing.T) []corpusCase {
 	t.Helper()
-	f, err := os.Open(filepath.Join(corpusDir, "cases.tsv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
 	var out []corpusCase
-	sc := bufio.NewScanner(f)
-	for n := 1; sc.Scan(); n++ {
-		l := sc.Text()
-		if l == "" || l[0] == '#' {
-			continue
-		}
-		c := strings.Split(l, "\t")
-		if len(c) != 7 {
-			t.Fatalf("cases.tsv:%d: %d columns", n, len(c))
-		}
-		cc := corpusCase{file: c[0], decoder: c[1], limits: c[2], reason: validate.Reason(c[3]), field: c[4]}
-		if cc.field == "-" {
-			cc.field = ""
-		}
-		if cc.line, err = strconv.Atoi(c[5]); err != nil {
-			t.Fatalf("cases.tsv:%d: line %q", n, c[5])
-		}
-		if cc.sample, err = strconv.Atoi(c[6]); err != nil {
-			t.Fatalf("cases.tsv:%d: sample %q", n, c[6])
-		}
-		if c[2] != "-" {
-			for _, kv := range strings.Split(c[2], ",") {
-				k, v, _ := strings.Cut(kv, "=")
-				x, err := strconv.Atoi(v)
-				if err != nil {
-					t.Fatalf("cases.tsv:%d: limit %q", n, kv)
-				}
-				switch k {
-				case "max_samples":
-					cc.lim.MaxSamples = x
-				case "max_tracks":
-					cc.lim.MaxTracks = x
-				case "max_bytes":
-					cc.lim.MaxBytes = x
-				default:
-					t.Fatalf("cases.tsv:%d: unknown limit %q", n, k)
-				}
-			}
-		}
-		out = append(out, cc)
+	for _, c := range decodetest.Cases(t) {
+		out = append(out, corpusCase{file: c.File, decoder: c.Decoder, limits: c.Limits, lim: c.Lim, reason: c.Reason, field: c.Field, line: c.Line, sample: c.Sample})
 	}
 	if len(out) < 40 {
 		t.Fatalf("only %d corpus cases", len(out))
