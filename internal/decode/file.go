@@ -86,6 +86,12 @@ func isText(b []byte, cut bool) bool {
 // defaults). The Locator maps samples to file lines for CSV and is nil for
 // the other formats. An empty file is an error.
 func File(name string, b []byte, lim validate.Limits) (*kinchainv1.Capture, validate.Locator, error) {
+	return FileWith(name, b, lim, nil)
+}
+
+// FileWith is File with the sample arrays of a protobuf capture taken from
+// f (nil: allocated); the other formats ignore f.
+func FileWith(name string, b []byte, lim validate.Limits, f Floats) (*kinchainv1.Capture, validate.Locator, error) {
 	lim = lim.WithDefaults()
 	if len(b) > lim.MaxBytes {
 		return nil, nil, &validate.Error{Sample: -1, Reason: validate.ReasonTooLarge, Detail: fmt.Sprintf("%d bytes, more than the limit of %d", len(b), lim.MaxBytes)}
@@ -104,7 +110,7 @@ func File(name string, b []byte, lim validate.Limits) (*kinchainv1.Capture, vali
 		c, err := jsonCapture(b, lim)
 		return c, nil, err
 	default:
-		c, err := protoCapture(b, lim)
+		c, err := protoCapture(b, lim, f)
 		return c, nil, err
 	}
 }

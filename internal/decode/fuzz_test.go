@@ -10,6 +10,7 @@ import (
 
 	"google.golang.org/protobuf/proto"
 
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/decode"
 	"github.com/kinchain/kinchain/internal/encode"
@@ -109,7 +110,9 @@ func FuzzCSV(f *testing.F) {
 }
 
 // FuzzProto: decode.Proto and validate.Capture never panic and fail only
-// with *validate.Error; what decodes re-encodes and decodes again.
+// with *validate.Error; what decodes equals proto.Unmarshal's message (the
+// reference, google.golang.org/protobuf), also when decoded into recycled
+// slices, and re-encodes and decodes again.
 func FuzzProto(f *testing.F) {
 	seed(f, ".pb")
 	f.Fuzz(func(t *testing.T, b []byte) {
@@ -117,6 +120,19 @@ func FuzzProto(f *testing.F) {
 		mustBeValidationError(t, err)
 		if err != nil {
 			return
+		}
+		ref := &kinchainv1.Capture{}
+		if err := proto.Unmarshal(b, ref); err != nil {
+			t.Fatalf("decoded, but proto.Unmarshal fails: %v", err)
+		}
+		if !proto.Equal(pc, ref) {
+			t.Fatalf("differs from proto.Unmarshal:\n%s", diff(ref, pc))
+		}
+		if len(b) > 0 {
+			pooled, _, err := decode.FileWith("x.pb", b, validate.Limits{}, &poisoned{})
+			if err != nil || !proto.Equal(pooled, ref) {
+				t.Fatalf("decoded into recycled slices: %v\n%s", err, diff(ref, pooled))
+			}
 		}
 		c, err := validate.Capture(pc, fuzzLimits, nil)
 		mustBeValidationError(t, err)

@@ -1,7 +1,10 @@
 package decode
 
 import (
+	"encoding/binary"
 	"fmt"
+	"math"
+	"slices"
 	"unicode/utf8"
 
 	"google.golang.org/protobuf/encoding/protowire"
@@ -18,10 +21,17 @@ import (
 // type, packed lengths and UTF-8. Errors are *validate.Error naming the
 // field path ("tracks[2].qw") where the bytes go wrong.
 func Proto(b []byte) (*kinchainv1.Capture, error) {
-	return protoCapture(b, validate.Limits{})
+	return protoCapture(b, validate.Limits{}, nil)
 }
 
-func protoCapture(b []byte, lim validate.Limits) (*kinchainv1.Capture, error) {
+// Floats supplies the sample arrays of a decoded protobuf capture, so that
+// a server can recycle them: Get returns a slice of length n, whose
+// contents the decoder overwrites.
+type Floats interface {
+	Get(n int) []float64
+}
+
+func protoCapture(b []byte, lim validate.Limits, f Floats) (*kinchainv1.Capture, error) {
 	lim = lim.WithDefaults()
 	if len(b) > lim.MaxBytes {
 		return nil, &validate.Error{Sample: -1, Reason: validate.ReasonTooLarge, Detail: fmt.Sprintf("%d bytes, more than the limit of %d", len(b), lim.MaxBytes)}
@@ -31,10 +41,151 @@ func protoCapture(b []byte, lim validate.Limits) (*kinchainv1.Capture, error) {
 	if e := s.message(b, c.ProtoReflect().Descriptor(), "", 0); e != nil {
 		return nil, e
 	}
-	if err := proto.Unmarshal(b, c); err != nil {
+	if err := unmarshalCapture(b, c, f); err != nil {
 		return nil, protojsonError(err)
 	}
 	return c, nil
+}
+
+// unmarshalCapture is proto.Unmarshal(b, c) for wire data that passed the
+// scan, except that the tracks' sample arrays are copied out of their
+// packed bytes here, into slices from f. Decoding them is mostly
+// allocating and zeroing fresh memory, so a server that recycles the
+// arrays saves most of it (DEVELOPERS.md, Performance, "Service").
+// Everything else (the capture's other fields, a track's segment and
+// mounting, unknown fields) still goes through proto.Unmarshal.
+// TestProtoMatchesUnmarshal and FuzzProto check the result equals
+// proto.Unmarshal's.
+func unmarshalCapture(b []byte, c *kinchainv1.Capture, f Floats) error {
+	var rest []byte
+	var tracks []*kinchainv1.Track
+	for in := b; len(in) > 0; {
+		num, typ, n := protowire.ConsumeTag(in)
+		if n < 0 {
+			return proto.Unmarshal(b, c) // not after the scan; proto says why
+		}
+		m := protowire.ConsumeFieldValue(num, typ, in[n:])
+		if m < 0 {
+			return proto.Unmarshal(b, c)
+		}
+		if num == captureTracksNumber && typ == protowire.BytesType {
+			v, _ := protowire.ConsumeBytes(in[n : n+m])
+			t, err := unmarshalTrack(v, f)
+			if err != nil {
+				return err
+			}
+			tracks = append(tracks, t)
+		} else {
+			rest = append(rest, in[:n+m]...)
+		}
+		in = in[n+m:]
+	}
+	if err := proto.Unmarshal(rest, c); err != nil {
+		return err
+	}
+	c.Tracks = tracks
+	return nil
+}
+
+// unmarshalTrack decodes one Track: its repeated doubles (packed or not;
+// repeated occurrences appended in order, as protobuf merges them) here,
+// the other fields with proto.Unmarshal.
+func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
+	t := &kinchainv1.Track{}
+	var arrays [trackArrayFields][]float64
+	var rest []byte
+	for in := b; len(in) > 0; {
+		num, typ, n := protowire.ConsumeTag(in)
+		if n < 0 {
+			return t, proto.Unmarshal(b, t)
+		}
+		m := protowire.ConsumeFieldValue(num, typ, in[n:])
+		if m < 0 {
+			return t, proto.Unmarshal(b, t)
+		}
+		k := int(num) - firstTrackArray
+		switch {
+		case k < 0 || k >= trackArrayFields:
+			rest = append(rest, in[:n+m]...)
+		case typ == protowire.BytesType:
+			v, _ := protowire.ConsumeBytes(in[n : n+m])
+			if len(v)%8 != 0 {
+				return t, proto.Unmarshal(b, t)
+			}
+			arrays[k] = appendDoubles(arrays[k], v, f)
+		case typ == protowire.Fixed64Type:
+			w, _ := protowire.ConsumeFixed64(in[n : n+m])
+			arrays[k] = append(arrays[k], math.Float64frombits(w))
+		default:
+			return t, proto.Unmarshal(b, t)
+		}
+		in = in[n+m:]
+	}
+	if len(rest) > 0 {
+		if err := proto.Unmarshal(rest, t); err != nil {
+			return t, err
+		}
+	}
+	for k, a := range arrays {
+		if a != nil {
+			*trackArray(t, k) = a
+		}
+	}
+	return t, nil
+}
+
+// appendDoubles appends the little-endian doubles of packed bytes v to
+// dst; a first occurrence gets its slice from f.
+func appendDoubles(dst []float64, v []byte, f Floats) []float64 {
+	n := len(v) / 8
+	k := len(dst)
+	switch {
+	case dst == nil && f != nil:
+		dst = f.Get(n)
+	case dst == nil:
+		dst = make([]float64, n)
+	default:
+		dst = slices.Grow(dst, n)[:k+n]
+	}
+	out := dst[k:]
+	for i := range out {
+		out[i] = math.Float64frombits(binary.LittleEndian.Uint64(v[8*i:]))
+	}
+	return dst
+}
+
+// Track's repeated double fields are numbers 2 (time_s) to 18 (pz), and
+// Capture.tracks is number 4; init checks both against the descriptors.
+const (
+	firstTrackArray     = 2
+	trackArrayFields    = 17
+	captureTracksNumber = 4
+)
+
+// trackArray returns Track field number firstTrackArray+k.
+func trackArray(t *kinchainv1.Track, k int) *[]float64 {
+	return [trackArrayFields]*[]float64{
+		&t.TimeS, &t.Qw, &t.Qx, &t.Qy, &t.Qz, &t.Gx, &t.Gy, &t.Gz,
+		&t.Ax, &t.Ay, &t.Az, &t.Mx, &t.My, &t.Mz, &t.Px, &t.Py, &t.Pz,
+	}[k]
+}
+
+func init() {
+	fields := (&kinchainv1.Track{}).ProtoReflect().Descriptor().Fields()
+	for k := 0; k < trackArrayFields; k++ {
+		fd := fields.ByNumber(protowire.Number(firstTrackArray + k))
+		if fd == nil || fd.Kind() != protoreflect.DoubleKind || !fd.IsList() {
+			panic(fmt.Sprintf("decode: Track field %d is not a repeated double", firstTrackArray+k))
+		}
+		t := &kinchainv1.Track{}
+		t.ProtoReflect().Mutable(fd).List().Append(protoreflect.ValueOfFloat64(1))
+		if len(*trackArray(t, k)) != 1 {
+			panic(fmt.Sprintf("decode: trackArray(%d) is not Track.%s", k, fd.Name()))
+		}
+	}
+	if fd := (&kinchainv1.Capture{}).ProtoReflect().Descriptor().Fields().ByNumber(captureTracksNumber); fd == nil || fd.FullName() != fieldTracks {
+		panic("decode: Capture.tracks is not field 4")
+	}
 }
 
 // wireScanner walks protobuf wire data against a message descriptor.

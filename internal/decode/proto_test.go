@@ -143,3 +143,75 @@ func TestProtoTrackBomb(t *testing.T) {
 		t.Fatalf("got %v", err)
 	}
 }
+
+// poisoned is a decode.Floats whose slices start out NaN, with spare
+// capacity, as recycled slices would.
+type poisoned struct{ gets int }
+
+func (p *poisoned) Get(n int) []float64 {
+	p.gets++
+	s := make([]float64, n, n+3)
+	for i := range s[:cap(s)] {
+		s[:cap(s)][i] = math.NaN()
+	}
+	return s
+}
+
+// TestProtoMatchesUnmarshal: decode.Proto copies the tracks' sample arrays
+// out of the wire bytes itself; the reference is proto.Unmarshal
+// (google.golang.org/protobuf), which must give an equal message on wire
+// data that exercises protobuf's merge rules (protobuf.dev, encoding
+// guide, "Packed Repeated Fields" and "Last One Wins"): a packed array split
+// over two occurrences, packed and unpacked elements of one field
+// interleaved, tracks among other capture fields, a scalar set twice,
+// unknown fields inside a track, an empty packed array. Decoding into
+// recycled slices (decode.FileWith) must give the same.
+func TestProtoMatchesUnmarshal(t *testing.T) {
+	seg := func(s int) []byte { return protowire.AppendVarint(tag(nil, 1, protowire.VarintType), uint64(s)) }
+	one := func(n protowire.Number, x float64) []byte {
+		return protowire.AppendFixed64(tag(nil, n, protowire.Fixed64Type), math.Float64bits(x))
+	}
+	mounting := msg(19, one(1, 0.5), one(2, 0.5))
+	unknown := protowire.AppendVarint(tag(nil, 77, protowire.VarintType), 5)
+	cases := map[string][]byte{
+		"split packed": msg(4, seg(1), packed(2, 0, 0.01), packed(3, 1, 1), packed(2, 0.02), packed(3, 1)),
+		"packed and unpacked interleaved": msg(4, seg(2), one(3, 1), packed(3, 0.5, 0.25), one(3, -0.125),
+			packed(2, 0, 1, 2, 3)),
+		"tracks among other fields": cat(
+			protowire.AppendString(tag(nil, 1, protowire.BytesType), "a"),
+			msg(4, seg(1), packed(2, 0, 1), packed(3, 1, 1), packed(4, 0, 0), packed(5, 0, 0), packed(6, 0, 0)),
+			protowire.AppendVarint(tag(nil, 2, protowire.VarintType), 1),
+			msg(4, seg(5), packed(2, 0, 1), packed(7, 0.1, 0.2), packed(10, 9.8, 9.7), mounting),
+			protowire.AppendString(tag(nil, 1, protowire.BytesType), "b"), // last one wins
+			msg(4, seg(6), unknown, packed(16, 1), packed(17), packed(18, math.Copysign(0, -1)), unknown),
+		),
+		"segment set twice": msg(4, seg(1), packed(2, 0, 1), seg(3), packed(2, 2)),
+		"empty track":       msg(4),
+		"every array": msg(4, seg(4), packed(2, 1), packed(3, 2), packed(4, 3), packed(5, 4), packed(6, 5), packed(7, 6),
+			packed(8, 7), packed(9, 8), packed(10, 9), packed(11, 10), packed(12, 11), packed(13, 12), packed(14, 13),
+			packed(15, 14), packed(16, 15), packed(17, 16), packed(18, math.Inf(1))),
+	}
+	for name, b := range cases {
+		t.Run(name, func(t *testing.T) {
+			want := &kinchainv1.Capture{}
+			if err := proto.Unmarshal(b, want); err != nil {
+				t.Fatal(err)
+			}
+			got, err := decode.Proto(b)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !proto.Equal(got, want) {
+				t.Errorf("decode.Proto differs from proto.Unmarshal:\n%s", diff(want, got))
+			}
+			var p poisoned
+			got, _, err = decode.FileWith("x.pb", b, validate.Limits{}, &p)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !proto.Equal(got, want) {
+				t.Errorf("decode.FileWith differs from proto.Unmarshal:\n%s", diff(want, got))
+			}
+		})
+	}
+}

@@ -5,6 +5,7 @@ import (
 	"context"
 	"math"
 	"net/http"
+	"sync"
 	"testing"
 
 	"google.golang.org/grpc/codes"
@@ -50,6 +51,49 @@ func TestEngineGRPC(t *testing.T) {
 	}
 	if !proto.Equal(got, want) {
 		t.Errorf("gRPC response differs from the engine's own result")
+	}
+
+	// The server recycles the sample arrays of a request for the next
+	// ones (pool.go): captures of other lengths, rates and handedness,
+	// one after the other and at once, are each answered as the engine
+	// answers them alone.
+	var reqs []*kinchainv1.AnalyzeCaptureRequest
+	var wants []*kinchainv1.AnalyzeCaptureResponse
+	for i, sc := range []synth.Config{
+		{Rate: 1000, Duration: 3, LeadIn: 0.5, Tail: 0.3},
+		{Rate: 500, Duration: 4, LeadIn: 1, Tail: 0.5, Handedness: kinchainv1.Handedness_HANDEDNESS_LEFT},
+		{Rate: 1000, Duration: 3.2, LeadIn: 0.6, Tail: 0.4, Swings: 1},
+		{Rate: 240, Duration: 3, LeadIn: 0.5, Tail: 0.3},
+	} {
+		c, _, err := synth.Generate(sc)
+		if err != nil {
+			t.Fatalf("capture %d: %v", i, err)
+		}
+		r := &kinchainv1.AnalyzeCaptureRequest{Capture: c, Options: &kinchainv1.AnalysisOptions{IncludeSeries: i%2 == 0}}
+		w, err := eng.Analyze(context.Background(), r)
+		if err != nil {
+			t.Fatalf("capture %d: %v", i, err)
+		}
+		reqs, wants = append(reqs, r), append(wants, w)
+	}
+	for round := 0; round < 3; round++ {
+		var wg sync.WaitGroup
+		for i := range reqs {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				got, err := ts.client().AnalyzeCapture(context.Background(), reqs[i])
+				if err != nil {
+					t.Errorf("round %d, capture %d: %v", round, i, err)
+				} else if !proto.Equal(got, wants[i]) {
+					t.Errorf("round %d, capture %d: the response differs from the engine's own result", round, i)
+				}
+			}()
+			if round == 0 {
+				wg.Wait() // one after the other first
+			}
+		}
+		wg.Wait()
 	}
 
 	// Bad input through the real engine: a NaN sample is named with its

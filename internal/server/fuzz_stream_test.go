@@ -53,7 +53,7 @@ func (f *fuzzStream) RecvMsg(m any) error {
 	if len(f.in) == 0 {
 		return io.EOF
 	}
-	*m.(*rawMessage) = f.in[0]
+	*m.(*rawMessage) = rawMessage{b: f.in[0]}
 	f.in = f.in[1:]
 	return nil
 }

@@ -402,6 +402,7 @@ func (s *Server) analyzeProto(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	resp, err := s.svc.AnalyzeCapture(ctx, req)
+	releaseRequest(req) // the analysis is done with the arrays (pool.go)
 	if err != nil {
 		s.WriteHTTPError(w, r, err)
 		return

@@ -237,7 +237,7 @@ func (r *grpcReporter) PostMsgReceive(msg any, err error, _ time.Duration) {
 	}
 	switch v := msg.(type) {
 	case *rawMessage:
-		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(len(*v)))
+		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(len(v.b)))
 	case proto.Message:
 		r.m.grpcMsgBytes.WithLabelValues(r.method).Observe(float64(proto.Size(v)))
 	}

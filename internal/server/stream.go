@@ -82,7 +82,8 @@ func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer)
 			err := ss.RecvMsg(&raw)
 			var m *kinchainv1.StreamCaptureRequest
 			if err == nil {
-				m, err = decodeStreamRequest(raw)
+				m, err = decodeStreamRequest(raw.b)
+				raw.free()
 			}
 			select {
 			case msgs <- recvResult{m, err}:

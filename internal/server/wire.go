@@ -41,8 +41,22 @@ import (
 // field. DEVELOPERS.md (Service, "Memory bound of the service") derives
 // the memory bound that follows.
 
-// rawMessage is a received message left undecoded.
-type rawMessage []byte
+// rawMessage is a received message left undecoded: its bytes b, held in
+// buf (a buffer of gRPC's pool) until free is called. The decoders copy
+// what they keep, so a message is freed as soon as it is decoded, and the
+// buffer serves the next request instead of becoming garbage.
+type rawMessage struct {
+	b   []byte
+	buf mem.Buffer
+}
+
+// free returns the buffer to the pool; b must not be used after it.
+func (r *rawMessage) free() {
+	if r.buf != nil {
+		r.buf.Free()
+	}
+	*r = rawMessage{}
+}
 
 // rawCodec is the server's gRPC codec: protobuf, except that it fills a
 // *rawMessage with the message's bytes.
@@ -50,10 +64,12 @@ type rawCodec struct{ encoding.CodecV2 }
 
 func newRawCodec() rawCodec { return rawCodec{encoding.GetCodecV2("proto")} }
 
-// Unmarshal copies the bytes into a *rawMessage, or unmarshals protobuf.
+// Unmarshal gathers the bytes into a pooled buffer held by a *rawMessage,
+// or unmarshals protobuf.
 func (c rawCodec) Unmarshal(data mem.BufferSlice, v any) error {
 	if r, ok := v.(*rawMessage); ok {
-		*r = data.Materialize()
+		r.buf = data.MaterializeToBuffer(mem.DefaultBufferPool())
+		r.b = r.buf.ReadOnlyData()
 		return nil
 	}
 	return c.CodecV2.Unmarshal(data, v)
@@ -229,7 +245,7 @@ func decodeAnalyzeRequest(b []byte, lim validate.Limits) (*kinchainv1.AnalyzeCap
 // decodeCapturePB decodes a binary Capture with decode's protobuf reader;
 // error paths are made relative to a request ("capture.tracks[0].qw").
 func decodeCapturePB(b []byte, lim validate.Limits) (*kinchainv1.Capture, error) {
-	pc, _, err := decode.File("capture.pb", b, lim)
+	pc, _, err := decode.FileWith("capture.pb", b, lim, floats)
 	if err != nil {
 		var ve *validate.Error
 		if errors.As(err, &ve) {
@@ -282,11 +298,14 @@ func (s *Server) analyzeHandler(srv any, ctx context.Context, dec func(any) erro
 	if err := dec(&raw); err != nil {
 		return nil, err
 	}
-	req, derr := decodeAnalyzeRequest(raw, s.lim)
-	raw = nil
+	req, derr := decodeAnalyzeRequest(raw.b, s.lim)
+	raw.free()
 	if req == nil {
 		req = &kinchainv1.AnalyzeCaptureRequest{}
 	}
+	// The analysis has returned when the chain has: its arrays can serve
+	// the next request (pool.go).
+	defer releaseRequest(req)
 	handler := func(ctx context.Context, r any) (any, error) {
 		if derr != nil {
 			return nil, s.toStatus(ctx, derr, scopeBody)

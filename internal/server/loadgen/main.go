@@ -60,6 +60,7 @@ import (
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/cli"
+	"github.com/kinchain/kinchain/internal/engine"
 	"github.com/kinchain/kinchain/internal/synth"
 )
 
@@ -154,8 +155,17 @@ func run(args []string, out io.Writer) error {
 		_, _ = call(context.Background())
 	}
 
+	// The in-process reference: the same engine, the same callers, in this
+	// process, while the server idles.
+	rep.InProcess = inProcess(o, req)
 	capPhase := closedLoop(o, call, srv)
 	rep.Phases = append(rep.Phases, capPhase)
+	if capPhase.OK > 0 && rep.InProcess.CPUms > 0 {
+		rep.WallRatio = capPhase.OKPerSecond / rep.InProcess.PerSecond
+		if capPhase.ServerCPUms > 0 {
+			rep.CPURatio = rep.InProcess.CPUms / capPhase.ServerCPUms
+		}
+	}
 	capacity := capPhase.OKPerSecond
 	if capacity <= 0 {
 		printReport(out, rep, o.json)
@@ -395,15 +405,35 @@ type phase struct {
 	Codes       map[string]int `json:"codes"`
 	PeakRSSMiB  float64        `json:"server_peak_rss_mib,omitempty"`
 	Seconds     float64        `json:"seconds"`
+	// ServerCPUms and ClientCPUms are the CPU time (user + system) per
+	// successful call of the server's process and of this one; only in
+	// the capacity phase, ServerCPUms only with a child server.
+	ServerCPUms float64 `json:"server_cpu_ms_per_ok,omitempty"`
+	ClientCPUms float64 `json:"client_cpu_ms_per_ok,omitempty"`
+}
+
+// reference is the in-process figure: engine.Analyze called directly.
+type reference struct {
+	Calls     int     `json:"calls"`
+	PerSecond float64 `json:"analyses_per_s"`
+	CPUms     float64 `json:"cpu_ms_per_analysis"`
 }
 
 type report struct {
-	Transport    string  `json:"transport"`
-	Server       string  `json:"server"`
-	PhaseSeconds float64 `json:"phase_seconds"`
-	MaxRequests  int     `json:"max_requests"`
-	PeakRSSMiB   float64 `json:"server_peak_rss_mib,omitempty"`
-	Phases       []phase `json:"phases"`
+	Transport    string    `json:"transport"`
+	Server       string    `json:"server"`
+	PhaseSeconds float64   `json:"phase_seconds"`
+	MaxRequests  int       `json:"max_requests"`
+	PeakRSSMiB   float64   `json:"server_peak_rss_mib,omitempty"`
+	InProcess    reference `json:"in_process"`
+	// WallRatio is the capacity phase's ok/s over the in-process
+	// analyses/s (client and server sharing the machine); CPURatio the
+	// in-process CPU per analysis over the server's CPU per successful
+	// call: the share of the server's CPU that is analysis, which is what
+	// bounds its throughput on a machine of its own.
+	WallRatio float64 `json:"wall_ratio,omitempty"`
+	CPURatio  float64 `json:"cpu_ratio,omitempty"`
+	Phases    []phase `json:"phases"`
 }
 
 // recorder collects outcomes.
@@ -459,6 +489,11 @@ func closedLoop(o options, call func(context.Context) (string, error), srv *chil
 	var wg sync.WaitGroup
 	var mu sync.Mutex
 	calls := 0
+	self0 := selfCPU()
+	var server0 time.Duration
+	if srv != nil {
+		server0 = procCPU(srv.cmd.Process.Pid)
+	}
 	for i := 0; i < o.clients; i++ {
 		wg.Add(1)
 		go func() {
@@ -480,7 +515,90 @@ func closedLoop(o options, call func(context.Context) (string, error), srv *chil
 		}()
 	}
 	wg.Wait()
-	return rec.phase("capacity (closed loop)", 0, time.Since(start), srv)
+	p := rec.phase("capacity (closed loop)", 0, time.Since(start), srv)
+	if p.OK > 0 {
+		p.ClientCPUms = perCall(selfCPU()-self0, p.OK)
+		if srv != nil {
+			if server1 := procCPU(srv.cmd.Process.Pid); server0 > 0 && server1 > server0 {
+				p.ServerCPUms = perCall(server1-server0, p.OK)
+			}
+		}
+	}
+	return p
+}
+
+// inProcess runs o.clients callers of engine.Analyze on req back to back
+// for o.duration (at most o.maxCalls calls) in this process.
+func inProcess(o options, req *kinchainv1.AnalyzeCaptureRequest) reference {
+	eng := engine.New(engine.Config{})
+	ctx := context.Background()
+	_, _ = eng.Analyze(ctx, req) // warm up
+	end := time.Now().Add(o.duration)
+	var mu sync.Mutex
+	calls := 0
+	var wg sync.WaitGroup
+	start, cpu0 := time.Now(), selfCPU()
+	for i := 0; i < o.clients; i++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for time.Now().Before(end) {
+				mu.Lock()
+				if calls >= o.maxCalls {
+					mu.Unlock()
+					return
+				}
+				calls++
+				mu.Unlock()
+				_, _ = eng.Analyze(ctx, req)
+			}
+		}()
+	}
+	wg.Wait()
+	elapsed, cpu := time.Since(start), selfCPU()-cpu0
+	if calls == 0 {
+		return reference{}
+	}
+	return reference{Calls: calls, PerSecond: float64(calls) / elapsed.Seconds(), CPUms: perCall(cpu, calls)}
+}
+
+func perCall(d time.Duration, n int) float64 {
+	return float64(d) / float64(time.Millisecond) / float64(n)
+}
+
+// selfCPU is this process's user + system CPU time so far.
+func selfCPU() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// procCPU is process pid's user + system CPU time so far, from fields 14
+// and 15 of /proc/<pid>/stat (proc(5)), in clock ticks of 1/100 s (Linux's
+// USER_HZ, which the kernel uses for /proc whatever its own tick rate); 0
+// when it cannot be read.
+func procCPU(pid int) time.Duration {
+	b, err := os.ReadFile(fmt.Sprintf("/proc/%d/stat", pid))
+	if err != nil {
+		return 0
+	}
+	// Field 2, the command name, is in parentheses and may hold spaces.
+	i := bytes.LastIndexByte(b, ')')
+	if i < 0 {
+		return 0
+	}
+	f := strings.Fields(string(b[i+1:])) // f[0] is field 3
+	if len(f) < 13 {
+		return 0
+	}
+	ut, err1 := strconv.ParseInt(f[11], 10, 64)
+	st, err2 := strconv.ParseInt(f[12], 10, 64)
+	if err1 != nil || err2 != nil {
+		return 0
+	}
+	return time.Duration(ut+st) * (time.Second / 100)
 }
 
 // openLoop starts calls at rate per second for o.duration, each in its own
@@ -539,5 +657,21 @@ func printReport(w io.Writer, r report, asJSON bool) {
 	}
 	if r.PeakRSSMiB > 0 {
 		fmt.Fprintf(w, "server peak RSS (VmHWM of the child process): %.0f MiB\n", r.PeakRSSMiB)
+	}
+	if r.InProcess.Calls > 0 {
+		fmt.Fprintf(w, "in-process reference (engine.Analyze in this process, same callers, server idle): %.1f analyses/s, %.2f ms CPU per analysis\n",
+			r.InProcess.PerSecond, r.InProcess.CPUms)
+	}
+	if len(r.Phases) > 0 && r.Phases[0].ClientCPUms > 0 {
+		p := r.Phases[0]
+		fmt.Fprintf(w, "capacity phase: client %.2f ms CPU per call", p.ClientCPUms)
+		if p.ServerCPUms > 0 {
+			fmt.Fprintf(w, ", server %.2f ms CPU per call", p.ServerCPUms)
+		}
+		fmt.Fprintf(w, "; ok/s over in-process analyses/s %.0f %% (client and server share the machine)", 100*r.WallRatio)
+		if r.CPURatio > 0 {
+			fmt.Fprintf(w, "; in-process CPU over server CPU per call %.0f %% (the server on a machine of its own)", 100*r.CPURatio)
+		}
+		fmt.Fprintln(w)
 	}
 }
