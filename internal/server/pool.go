@@ -29,8 +29,8 @@ type floatPool struct {
 }
 
 const (
-	minPoolShift = 6                        // smallest class: 4·2^6 = 256 samples
-	maxPoolShift = 22                       // largest: 7·2^22 ≈ 29 M samples (235 MB)
+	minPoolShift = 6  // smallest class: 4·2^6 = 256 samples
+	maxPoolShift = 22 // largest: 7·2^22 ≈ 29 M samples (235 MB)
 	poolClasses  = (maxPoolShift - minPoolShift + 1) * 4
 )
 
