@@ -5,10 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"os"
 	"regexp"
 	"strconv"
-	"strings"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -18,6 +16,7 @@ import (
 
 	"github.com/kinchain/kinchain/api/client"
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/procstat"
 	"github.com/kinchain/kinchain/internal/server"
 	"github.com/kinchain/kinchain/internal/synth"
 )
@@ -39,59 +38,6 @@ import (
 // The figures in deploy/README.md ("Capacity per replica") come from this
 // benchmark; TestResourcesMatchRunbook checks the manifests against them.
 
-// procCPU returns the user+system CPU time of a process from
-// /proc/PID/stat (fields 14 and 15, in clock ticks of USER_HZ = 100, the
-// fixed value of Linux's user-space ABI; proc(5)).
-func procCPU(pid int) (time.Duration, error) {
-	b, err := os.ReadFile("/proc/" + strconv.Itoa(pid) + "/stat")
-	if err != nil {
-		return 0, err
-	}
-	s := string(b)
-	i := strings.LastIndexByte(s, ')') // the command name may hold spaces
-	if i < 0 {
-		return 0, errors.New("unexpected /proc stat format")
-	}
-	f := strings.Fields(s[i+1:]) // f[0] is field 3 (state)
-	if len(f) < 13 {
-		return 0, errors.New("short /proc stat")
-	}
-	u, err1 := strconv.ParseInt(f[11], 10, 64)
-	st, err2 := strconv.ParseInt(f[12], 10, 64)
-	if err := errors.Join(err1, err2); err != nil {
-		return 0, err
-	}
-	return time.Duration(u+st) * (time.Second / 100), nil
-}
-
-// procPeakRSS returns VmHWM of a process, bytes.
-func procPeakRSS(pid int) (int64, error) {
-	b, err := os.ReadFile("/proc/" + strconv.Itoa(pid) + "/status")
-	if err != nil {
-		return 0, err
-	}
-	m := regexp.MustCompile(`(?m)^VmHWM:\s+(\d+) kB`).FindSubmatch(b)
-	if m == nil {
-		return 0, errors.New("no VmHWM")
-	}
-	kb, err := strconv.ParseInt(string(m[1]), 10, 64)
-	return kb << 10, err
-}
-
-// procRSS returns VmRSS of a process, bytes.
-func procRSS(pid int) (int64, error) {
-	b, err := os.ReadFile("/proc/" + strconv.Itoa(pid) + "/status")
-	if err != nil {
-		return 0, err
-	}
-	m := regexp.MustCompile(`(?m)^VmRSS:\s+(\d+) kB`).FindSubmatch(b)
-	if m == nil {
-		return 0, errors.New("no VmRSS")
-	}
-	kb, err := strconv.ParseInt(string(m[1]), 10, 64)
-	return kb << 10, err
-}
-
 // maxRecvBytes is the body limit the pod runs with: KINCHAIN_MAX_RECV_BYTES,
 // else the server's default.
 func maxRecvBytes(tb testing.TB, env map[string]string) int {
@@ -106,11 +52,6 @@ func maxRecvBytes(tb testing.TB, env map[string]string) int {
 	}
 	n, _ := strconv.Atoi(m[1])
 	return n << map[string]uint{"": 0, "B": 0, "KiB": 10, "MiB": 20, "GiB": 30}[m[2]]
-}
-
-// resetPeakRSS resets VmHWM to the current RSS (proc(5), clear_refs "5").
-func resetPeakRSS(pid int) error {
-	return os.WriteFile("/proc/"+strconv.Itoa(pid)+"/clear_refs", []byte("5"), 0)
 }
 
 // captureSamples counts the samples of a capture.
@@ -131,21 +72,21 @@ var benchSegments = []kinchainv1.Segment{
 
 // measured wraps a sub-benchmark with the server-side measurements.
 func measured(b *testing.B, pid int, samples int, f func()) {
-	if err := resetPeakRSS(pid); err != nil {
+	if err := procstat.ResetPeakRSS(pid); err != nil {
 		b.Logf("cannot reset the peak RSS (%v); server-peak-MiB is the peak since start", err)
 	}
-	cpu0, err := procCPU(pid)
+	cpu0, err := procstat.CPU(pid)
 	if err != nil {
 		b.Fatal(err)
 	}
 	b.ResetTimer()
 	f()
 	b.StopTimer()
-	cpu1, err := procCPU(pid)
+	cpu1, err := procstat.CPU(pid)
 	if err != nil {
 		b.Fatal(err)
 	}
-	peak, err := procPeakRSS(pid)
+	peak, err := procstat.PeakRSS(pid)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -257,7 +198,7 @@ func BenchmarkCapacity(b *testing.B) {
 	}
 	b.Run("idle", func(b *testing.B) {
 		pid, _ := fresh(b)
-		rss, err := procRSS(pid)
+		rss, err := procstat.RSS(pid)
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -68,6 +68,10 @@ func newRawCodec() rawCodec { return rawCodec{encoding.GetCodecV2("proto")} }
 // or unmarshals protobuf.
 func (c rawCodec) Unmarshal(data mem.BufferSlice, v any) error {
 	if r, ok := v.(*rawMessage); ok {
+		if data.Len() > maxPooledBytes {
+			r.b = data.Materialize()
+			return nil
+		}
 		r.buf = data.MaterializeToBuffer(mem.DefaultBufferPool())
 		r.b = r.buf.ReadOnlyData()
 		return nil
@@ -245,7 +249,11 @@ func decodeAnalyzeRequest(b []byte, lim validate.Limits) (*kinchainv1.AnalyzeCap
 // decodeCapturePB decodes a binary Capture with decode's protobuf reader;
 // error paths are made relative to a request ("capture.tracks[0].qw").
 func decodeCapturePB(b []byte, lim validate.Limits) (*kinchainv1.Capture, error) {
-	pc, _, err := decode.FileWith("capture.pb", b, lim, floats)
+	var f decode.Floats
+	if len(b) <= maxPooledBytes {
+		f = floats
+	}
+	pc, _, err := decode.FileWith("capture.pb", b, lim, f)
 	if err != nil {
 		var ve *validate.Error
 		if errors.As(err, &ve) {

@@ -61,6 +61,7 @@ import (
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/cli"
 	"github.com/kinchain/kinchain/internal/engine"
+	"github.com/kinchain/kinchain/internal/procstat"
 	"github.com/kinchain/kinchain/internal/synth"
 )
 
@@ -291,22 +292,14 @@ func waitReady(httpAddr string) error {
 	return errors.New("the server never became ready")
 }
 
-// hwm is the server's peak resident set (VmHWM), MiB.
+// hwm is the server's peak resident set (VmHWM), MiB; 0 when it cannot be
+// read.
 func (c *child) hwm() float64 {
-	b, err := os.ReadFile(fmt.Sprintf("/proc/%d/status", c.cmd.Process.Pid))
+	b, err := procstat.PeakRSS(c.cmd.Process.Pid)
 	if err != nil {
 		return 0
 	}
-	for _, l := range strings.Split(string(b), "\n") {
-		if strings.HasPrefix(l, "VmHWM:") {
-			f := strings.Fields(l)
-			if len(f) >= 2 {
-				kb, _ := strconv.ParseFloat(f[1], 64)
-				return kb / 1024
-			}
-		}
-	}
-	return 0
+	return float64(b) / (1 << 20)
 }
 
 func (c *child) stop() {
@@ -484,38 +477,19 @@ func (r *recorder) phase(name string, offered float64, elapsed time.Duration, sr
 // closedLoop runs o.clients callers back to back for o.duration.
 func closedLoop(o options, call func(context.Context) (string, error), srv *child) phase {
 	var rec recorder
-	end := time.Now().Add(o.duration)
-	start := time.Now()
-	var wg sync.WaitGroup
-	var mu sync.Mutex
-	calls := 0
 	self0 := selfCPU()
 	var server0 time.Duration
 	if srv != nil {
 		server0 = procCPU(srv.cmd.Process.Pid)
 	}
-	for i := 0; i < o.clients; i++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for time.Now().Before(end) {
-				mu.Lock()
-				if calls >= o.maxCalls {
-					mu.Unlock()
-					return
-				}
-				calls++
-				mu.Unlock()
-				t0 := time.Now()
-				ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
-				code, _ := call(ctx)
-				cancel()
-				rec.add(code, time.Since(t0))
-			}
-		}()
-	}
-	wg.Wait()
-	p := rec.phase("capacity (closed loop)", 0, time.Since(start), srv)
+	_, elapsed := backToBack(o, func() {
+		t0 := time.Now()
+		ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+		code, _ := call(ctx)
+		cancel()
+		rec.add(code, time.Since(t0))
+	})
+	p := rec.phase("capacity (closed loop)", 0, elapsed, srv)
 	if p.OK > 0 {
 		p.ClientCPUms = perCall(selfCPU()-self0, p.OK)
 		if srv != nil {
@@ -533,11 +507,23 @@ func inProcess(o options, req *kinchainv1.AnalyzeCaptureRequest) reference {
 	eng := engine.New(engine.Config{})
 	ctx := context.Background()
 	_, _ = eng.Analyze(ctx, req) // warm up
+	cpu0 := selfCPU()
+	calls, elapsed := backToBack(o, func() { _, _ = eng.Analyze(ctx, req) })
+	if calls == 0 {
+		return reference{}
+	}
+	return reference{Calls: calls, PerSecond: float64(calls) / elapsed.Seconds(), CPUms: perCall(selfCPU()-cpu0, calls)}
+}
+
+// backToBack calls f from o.clients goroutines, each call after the
+// previous one, for o.duration and at most o.maxCalls calls in all; it
+// returns the calls made and the time they took.
+func backToBack(o options, f func()) (int, time.Duration) {
 	end := time.Now().Add(o.duration)
+	start := time.Now()
 	var mu sync.Mutex
 	calls := 0
 	var wg sync.WaitGroup
-	start, cpu0 := time.Now(), selfCPU()
 	for i := 0; i < o.clients; i++ {
 		wg.Add(1)
 		go func() {
@@ -550,16 +536,12 @@ func inProcess(o options, req *kinchainv1.AnalyzeCaptureRequest) reference {
 				}
 				calls++
 				mu.Unlock()
-				_, _ = eng.Analyze(ctx, req)
+				f()
 			}
 		}()
 	}
 	wg.Wait()
-	elapsed, cpu := time.Since(start), selfCPU()-cpu0
-	if calls == 0 {
-		return reference{}
-	}
-	return reference{Calls: calls, PerSecond: float64(calls) / elapsed.Seconds(), CPUms: perCall(cpu, calls)}
+	return calls, time.Since(start)
 }
 
 func perCall(d time.Duration, n int) float64 {
@@ -575,30 +557,13 @@ func selfCPU() time.Duration {
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
-// procCPU is process pid's user + system CPU time so far, from fields 14
-// and 15 of /proc/<pid>/stat (proc(5)), in clock ticks of 1/100 s (Linux's
-// USER_HZ, which the kernel uses for /proc whatever its own tick rate); 0
-// when it cannot be read.
+// procCPU is process pid's CPU time so far, 0 when it cannot be read.
 func procCPU(pid int) time.Duration {
-	b, err := os.ReadFile(fmt.Sprintf("/proc/%d/stat", pid))
+	d, err := procstat.CPU(pid)
 	if err != nil {
 		return 0
 	}
-	// Field 2, the command name, is in parentheses and may hold spaces.
-	i := bytes.LastIndexByte(b, ')')
-	if i < 0 {
-		return 0
-	}
-	f := strings.Fields(string(b[i+1:])) // f[0] is field 3
-	if len(f) < 13 {
-		return 0
-	}
-	ut, err1 := strconv.ParseInt(f[11], 10, 64)
-	st, err2 := strconv.ParseInt(f[12], 10, 64)
-	if err1 != nil || err2 != nil {
-		return 0
-	}
-	return time.Duration(ut+st) * (time.Second / 100)
+	return d
 }
 
 // openLoop starts calls at rate per second for o.duration, each in its own
