@@ -304,6 +304,7 @@ func (s *Server) serviceDesc() *grpc.ServiceDesc {
 func (s *Server) analyzeHandler(srv any, ctx context.Context, dec func(any) error, interceptor grpc.UnaryServerInterceptor) (any, error) {
 	var raw rawMessage
 	if err := dec(&raw); err != nil {
+		raw.free()
 		return nil, err
 	}
 	req, derr := decodeAnalyzeRequest(raw.b, s.lim)
