@@ -3,6 +3,7 @@ package cli
 import (
 	"bytes"
 	"context"
+	"flag"
 	"math"
 	"os"
 	"path/filepath"
@@ -106,11 +107,31 @@ func TestAnalyzeErrors(t *testing.T) {
 		{"analyze", "--format", "xml", "--demo"},
 		{"analyze", "--cutoff-hz", "abc", "--demo"},
 		{"analyze", "--neutral", "2:1", "--demo"},
+		{"analyze", "--gyro-range-dps", "-2000", "--demo"},
+		{"analyze", "--accel-range-g", "NaN", "--demo"},
 		{"nonsense"},
 	} {
 		errb.Reset()
 		if code := Main(args, nil, &out, &errb); code != 2 {
 			t.Errorf("%v: exit %d, want 2 (%s)", args, code, errb.String())
 		}
+	}
+}
+
+// The sensor-range flags reach the options (their effect on fused tracks
+// is checked in internal/engine, TestSensorRanges).
+func TestSensorRangeFlags(t *testing.T) {
+	var f analysisFlags
+	fs := flag.NewFlagSet("analyze", flag.ContinueOnError)
+	f.register(fs)
+	if err := fs.Parse([]string{"--gyro-range-dps", "4000", "--accel-range-g", "200"}); err != nil {
+		t.Fatal(err)
+	}
+	o, err := f.options()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if o.GetGyroRangeDps() != 4000 || o.GetAccelRangeG() != 200 {
+		t.Errorf("options %v", o)
 	}
 }

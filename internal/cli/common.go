@@ -4,6 +4,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -31,6 +32,8 @@ type analysisFlags struct {
 	gyro       bool
 	fuse       bool
 	noMag      bool
+	gyroRange  float64
+	accelRange float64
 }
 
 func (f *analysisFlags) register(fs *flag.FlagSet) {
@@ -46,6 +49,8 @@ func (f *analysisFlags) register(fs *flag.FlagSet) {
 	fs.BoolVar(&f.gyro, "gyro", false, "take angular velocity from the gyroscope columns where present")
 	fs.BoolVar(&f.fuse, "fuse", false, "estimate orientation from raw IMU columns even where quaternions are present")
 	fs.BoolVar(&f.noMag, "no-mag", false, "in fusion, ignore magnetometer columns (heading drifts freely)")
+	fs.Float64Var(&f.gyroRange, "gyro-range-dps", 0, "gyroscope full-scale range in deg/s, for the saturation findings of fused tracks (default 2000)")
+	fs.Float64Var(&f.accelRange, "accel-range-g", 0, "accelerometer full-scale range in g, for the clipping findings of fused tracks (default 16)")
 }
 
 // options converts the flags into AnalysisOptions; errors name the flag.
@@ -56,6 +61,14 @@ func (f *analysisFlags) options() (*kinchainv1.AnalysisOptions, error) {
 		RateHz:                   f.rate,
 		IncludeSeries:            f.series,
 		FusionIgnoreMagnetometer: f.noMag,
+		GyroRangeDps:             f.gyroRange,
+		AccelRangeG:              f.accelRange,
+	}
+	if !(f.gyroRange >= 0) || math.IsInf(f.gyroRange, 0) {
+		return nil, usagef("--gyro-range-dps: %v is not a positive range", f.gyroRange)
+	}
+	if !(f.accelRange >= 0) || math.IsInf(f.accelRange, 0) {
+		return nil, usagef("--accel-range-g: %v is not a positive range", f.accelRange)
 	}
 	if f.cutoff != "" {
 		v, err := strconv.ParseFloat(f.cutoff, 64)

@@ -176,7 +176,11 @@ func fuse(c *capture.Capture, opts *kinchainv1.AnalysisOptions) (map[kinchainv1.
 		if !(t.Q == nil || (force && raw)) {
 			continue
 		}
-		rep, err := fusion.Track(t, fusion.Options{IgnoreMag: opts.GetFusionIgnoreMagnetometer()})
+		rep, err := fusion.Track(t, fusion.Options{
+			IgnoreMag:  opts.GetFusionIgnoreMagnetometer(),
+			GyroRange:  opts.GetGyroRangeDps() * math.Pi / 180,            // 0: fusion's default
+			AccelRange: opts.GetAccelRangeG() * condition.StandardGravity, // 0: fusion's default
+		})
 		if err != nil {
 			return nil, nil, err
 		}

@@ -32,6 +32,7 @@ func TestQueryOptions(t *testing.T) {
 		{"neutral.start_s=0.1&neutral.end_s=0.9&rate_hz=200&residual_cutoff=true&fusion_ignore_magnetometer=true", &kinchainv1.AnalysisOptions{
 			Neutral: &kinchainv1.TimeWindow{StartS: 0.1, EndS: 0.9}, RateHz: 200, ResidualCutoff: true, FusionIgnoreMagnetometer: true}},
 		{"neutral=0.2:1.5", &kinchainv1.AnalysisOptions{Neutral: &kinchainv1.TimeWindow{StartS: 0.2, EndS: 1.5}}},
+		{"gyro_range_dps=4000&accelRangeG=200", &kinchainv1.AnalysisOptions{GyroRangeDps: 4000, AccelRangeG: 200}},
 	}
 	for _, c := range cases {
 		q, err := url.ParseQuery(c.query)

@@ -31,7 +31,9 @@ func Options(o *kinchainv1.AnalysisOptions) error {
 //     lim.MinRate..lim.MaxRate;
 //   - speed, angular_velocity_source, orientation_source, handedness: a
 //     value the enum defines;
-//   - neutral, when set: finite bounds, start before end.
+//   - neutral, when set: finite bounds, start before end;
+//   - gyro_range_dps, accel_range_g: 0 (the default) or finite and
+//     positive.
 func OptionsWithin(o *kinchainv1.AnalysisOptions, lim Limits) error {
 	if o == nil {
 		return nil
@@ -77,6 +79,20 @@ func OptionsWithin(o *kinchainv1.AnalysisOptions, lim Limits) error {
 	if w := o.GetNeutral(); w != nil {
 		if err := window("options.neutral", w, ReasonBadOption); err != nil {
 			return err
+		}
+	}
+	for _, r := range []struct {
+		field, unit string
+		v           float64
+	}{
+		{"gyro_range_dps", "deg/s", o.GetGyroRangeDps()},
+		{"accel_range_g", "g", o.GetAccelRangeG()},
+	} {
+		switch {
+		case !finite(r.v):
+			return bad(r.field, "not finite (%s)", num(r.v))
+		case r.v < 0:
+			return bad(r.field, "%s %s is negative (0: the default)", num(r.v), r.unit)
 		}
 	}
 	return nil

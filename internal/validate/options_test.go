@@ -38,6 +38,10 @@ func TestOptions(t *testing.T) {
 		{"handedness", &kinchainv1.AnalysisOptions{Handedness: 3}, validate.Limits{}, "options.handedness"},
 		{"neutral reversed", &kinchainv1.AnalysisOptions{Neutral: &kinchainv1.TimeWindow{StartS: 2, EndS: 1}}, validate.Limits{}, "options.neutral"},
 		{"neutral NaN", &kinchainv1.AnalysisOptions{Neutral: &kinchainv1.TimeWindow{StartS: 0, EndS: math.NaN()}}, validate.Limits{}, "options.neutral.end_s"},
+		{"sensor ranges", &kinchainv1.AnalysisOptions{GyroRangeDps: 4000, AccelRangeG: 200}, validate.Limits{}, ""},
+		{"gyro range negative", &kinchainv1.AnalysisOptions{GyroRangeDps: -2000}, validate.Limits{}, "options.gyro_range_dps"},
+		{"gyro range Inf", &kinchainv1.AnalysisOptions{GyroRangeDps: math.Inf(1)}, validate.Limits{}, "options.gyro_range_dps"},
+		{"accel range NaN", &kinchainv1.AnalysisOptions{AccelRangeG: math.NaN()}, validate.Limits{}, "options.accel_range_g"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {

@@ -376,7 +376,14 @@ type AnalysisOptions struct {
 	// Overrides the capture's handedness when set.
 	Handedness Handedness `protobuf:"varint,10,opt,name=handedness,proto3,enum=kinchain.v1.Handedness" json:"handedness,omitempty"`
 	// Overrides the capture's neutral window when set.
-	Neutral       *TimeWindow `protobuf:"bytes,11,opt,name=neutral,proto3" json:"neutral,omitempty"`
+	Neutral *TimeWindow `protobuf:"bytes,11,opt,name=neutral,proto3" json:"neutral,omitempty"`
+	// Full-scale range of the gyroscopes of raw inertial tracks, deg/s per
+	// axis; readings at 99 % of it or more are reported as saturation.
+	// 0: 2000 deg/s. Club-mounted sensors often have a larger range.
+	GyroRangeDps float64 `protobuf:"fixed64,12,opt,name=gyro_range_dps,json=gyroRangeDps,proto3" json:"gyro_range_dps,omitempty"`
+	// Full-scale range of the accelerometers, g (9.80665 m/s²) per axis, for
+	// the clipping findings. 0: 16 g.
+	AccelRangeG   float64 `protobuf:"fixed64,13,opt,name=accel_range_g,json=accelRangeG,proto3" json:"accel_range_g,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -486,6 +493,20 @@ func (x *AnalysisOptions) GetNeutral() *TimeWindow {
 		return x.Neutral
 	}
 	return nil
+}
+
+func (x *AnalysisOptions) GetGyroRangeDps() float64 {
+	if x != nil {
+		return x.GyroRangeDps
+	}
+	return 0
+}
+
+func (x *AnalysisOptions) GetAccelRangeG() float64 {
+	if x != nil {
+		return x.AccelRangeG
+	}
+	return 0
 }
 
 type AnalyzeCaptureRequest struct {
@@ -1893,7 +1914,7 @@ var File_kinchain_v1_analysis_proto protoreflect.FileDescriptor
 
 const file_kinchain_v1_analysis_proto_rawDesc = "" +
 	"\n" +
-	"\x1akinchain/v1/analysis.proto\x12\vkinchain.v1\x1a\x19kinchain/v1/capture.proto\"\xd6\x04\n" +
+	"\x1akinchain/v1/analysis.proto\x12\vkinchain.v1\x1a\x19kinchain/v1/capture.proto\"\xa0\x05\n" +
 	"\x0fAnalysisOptions\x12 \n" +
 	"\tcutoff_hz\x18\x01 \x01(\x01H\x00R\bcutoffHz\x88\x01\x01\x12!\n" +
 	"\ffilter_order\x18\x02 \x01(\x05R\vfilterOrder\x12'\n" +
@@ -1908,7 +1929,9 @@ const file_kinchain_v1_analysis_proto_rawDesc = "" +
 	"handedness\x18\n" +
 	" \x01(\x0e2\x17.kinchain.v1.HandednessR\n" +
 	"handedness\x121\n" +
-	"\aneutral\x18\v \x01(\v2\x17.kinchain.v1.TimeWindowR\aneutralB\f\n" +
+	"\aneutral\x18\v \x01(\v2\x17.kinchain.v1.TimeWindowR\aneutral\x12$\n" +
+	"\x0egyro_range_dps\x18\f \x01(\x01R\fgyroRangeDps\x12\"\n" +
+	"\raccel_range_g\x18\r \x01(\x01R\vaccelRangeGB\f\n" +
 	"\n" +
 	"_cutoff_hz\"\x7f\n" +
 	"\x15AnalyzeCaptureRequest\x12.\n" +
