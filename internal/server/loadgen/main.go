@@ -22,6 +22,13 @@
 //  2. fixed rate: open loop at -rate calls/s (default half the capacity);
 //  3. overload: open loop at twice the capacity.
 //
+// Before the phases, an in-process reference: the same callers run
+// engine.Analyze on the same request in this process for -duration. The
+// capacity phase then reports the CPU time per successful call of the
+// server's process (from /proc, internal/procstat) and of this one, and
+// the ratio of in-process CPU per analysis to the server's CPU per call:
+// the share of the server's work that is analysis.
+//
 // Open-loop latency is measured from the moment a call was due, so a
 // server that falls behind is charged for the wait. The request is the
 // synthetic model golfer's swing of the server benchmark: 3 s, six
