@@ -87,6 +87,12 @@ func unmarshalCapture(b []byte, c *kinchainv1.Capture, f Floats) error {
 	return nil
 }
 
+// UnmarshalTrack is proto.Unmarshal of one Track's wire bytes b, with
+// the sample arrays taken from f (nil: allocated): the server decodes the
+// tracks of stream batches with it. Unlike Proto it applies no limits and
+// no first pass; the caller bounds the message.
+func UnmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) { return unmarshalTrack(b, f) }
+
 // unmarshalTrack decodes one Track: its repeated doubles (packed or not;
 // repeated occurrences appended in order, as protobuf merges them) here,
 // the other fields with proto.Unmarshal.

@@ -16,8 +16,9 @@ import (
 // requests into arrays from floats (decode.FileWith) and gives them back
 // when the call's analysis has returned (releaseRequest): the engine keeps
 // nothing of a request, and its response holds arrays of its own
-// (TestResponseOwnsItsArrays). JSON and CSV bodies and stream batches are
-// decoded as before.
+// (TestResponseOwnsItsArrays). Stream batches are decoded the same way
+// (decodeStreamRequest) and given back once the session has copied their
+// samples into its buffers; JSON and CSV bodies are decoded as before.
 //
 // Only requests of up to maxPooledBytes are recycled. Pooled memory stays
 // live until the second garbage collection after it was given back, so
@@ -86,7 +87,13 @@ func (p *floatPool) put(s []float64) {
 // releaseRequest gives the sample arrays of req's tracks to the pool and
 // clears them from req.
 func releaseRequest(req *kinchainv1.AnalyzeCaptureRequest) {
-	for _, t := range req.GetCapture().GetTracks() {
+	releaseTracks(req.GetCapture().GetTracks())
+}
+
+// releaseTracks gives the sample arrays of tracks to the pool and clears
+// them from the tracks.
+func releaseTracks(tracks []*kinchainv1.Track) {
+	for _, t := range tracks {
 		for _, a := range []*[]float64{
 			&t.TimeS, &t.Qw, &t.Qx, &t.Qy, &t.Qz, &t.Gx, &t.Gy, &t.Gz,
 			&t.Ax, &t.Ay, &t.Az, &t.Mx, &t.My, &t.Mz, &t.Px, &t.Py, &t.Pz,

@@ -272,17 +272,64 @@ func malformedRequest(err error) error {
 }
 
 // decodeStreamRequest decodes one StreamCaptureRequest after the expansion
-// check. Errors are *validate.Error naming "message".
+// check. Errors are *validate.Error naming "message". A message that is a
+// batch and nothing else (what clients send 100 times a second per
+// stream) has its tracks decoded by decode.UnmarshalTrack into arrays of
+// the pool, which the caller gives back with releaseTracks once the
+// session has copied the samples; anything else goes to proto.Unmarshal.
+// Both give the same message (TestDecodeStreamRequest).
 func decodeStreamRequest(b []byte) (*kinchainv1.StreamCaptureRequest, error) {
 	m := &kinchainv1.StreamCaptureRequest{}
 	if err := checkExpansion(b, m.ProtoReflect().Descriptor(), "message"); err != nil {
 		return nil, err
+	}
+	if batch, ok := decodeBatch(b); ok {
+		m.Message = &kinchainv1.StreamCaptureRequest_Batch{Batch: batch}
+		return m, nil
 	}
 	if err := proto.Unmarshal(b, m); err != nil {
 		return nil, &validate.Error{Field: "message", Sample: -1, Reason: validate.ReasonMalformed,
 			Detail: fmt.Sprintf("not a valid StreamCaptureRequest: %v", err)}
 	}
 	return m, nil
+}
+
+// Field numbers of StreamCaptureRequest.batch and SampleBatch.tracks.
+const (
+	streamBatchField = 2
+	batchTracksField = 1
+)
+
+// decodeBatch decodes b when it is one StreamCaptureRequest.batch field
+// and nothing else, whose SampleBatch holds only tracks; false means
+// "use proto.Unmarshal" (and frees nothing: what it decoded is garbage).
+func decodeBatch(b []byte) (*kinchainv1.SampleBatch, bool) {
+	num, typ, n := protowire.ConsumeTag(b)
+	if n < 0 || num != streamBatchField || typ != protowire.BytesType {
+		return nil, false
+	}
+	v, m := protowire.ConsumeBytes(b[n:])
+	if m < 0 || n+m != len(b) {
+		return nil, false
+	}
+	batch := &kinchainv1.SampleBatch{}
+	for len(v) > 0 {
+		num, typ, n := protowire.ConsumeTag(v)
+		if n < 0 || num != batchTracksField || typ != protowire.BytesType {
+			return nil, false
+		}
+		tb, m := protowire.ConsumeBytes(v[n:])
+		if m < 0 {
+			return nil, false
+		}
+		t, err := decode.UnmarshalTrack(tb, floats)
+		if err != nil {
+			return nil, false
+		}
+		batch.Tracks = append(batch.Tracks, t)
+		v = v[n+m:]
+	}
+	return batch, true
 }
 
 // serviceDesc is the generated KinematicsService description with

@@ -96,13 +96,17 @@ type options struct {
 	rate        float64
 	maxCalls    int
 	json        bool
+	streams     int
+	batchMs     float64
 }
 
 func run(args []string, out io.Writer) error {
 	var o options
 	fs := flag.NewFlagSet("loadgen", flag.ContinueOnError)
 	fs.DurationVar(&o.duration, "duration", 10*time.Second, "length of each of the three phases")
-	fs.StringVar(&o.transport, "transport", "grpc", "grpc (AnalyzeCapture) or http (POST /v1/captures:analyze, JSON)")
+	fs.StringVar(&o.transport, "transport", "grpc", "grpc (AnalyzeCapture), http (POST /v1/captures:analyze, JSON) or stream (live StreamCapture calls)")
+	fs.IntVar(&o.streams, "streams", 500, "with -transport stream: live streams at once")
+	fs.Float64Var(&o.batchMs, "batch-ms", 10, "with -transport stream: stream time per batch, ms")
 	fs.StringVar(&o.addr, "addr", "", "drive this running server (127.0.0.1:PORT, the gRPC or HTTP port) instead of starting one")
 	fs.StringVar(&o.serverBin, "server-bin", "", "kinchain binary to start as the server (default: this program runs kinchain serve itself)")
 	fs.IntVar(&o.maxRequests, "max-requests", 4, "the server's -max-requests (analyses at once)")
@@ -113,14 +117,23 @@ func run(args []string, out io.Writer) error {
 	if err := fs.Parse(args); err != nil {
 		return err
 	}
-	if o.transport != "grpc" && o.transport != "http" {
-		return fmt.Errorf("-transport %q: want grpc or http", o.transport)
+	if o.transport != "grpc" && o.transport != "http" && o.transport != "stream" {
+		return fmt.Errorf("-transport %q: want grpc, http or stream", o.transport)
+	}
+	if o.transport == "stream" && (o.streams < 1 || o.streams > 10000) {
+		return fmt.Errorf("-streams %d: want 1 to 10000", o.streams)
+	}
+	if o.transport == "stream" && !(o.batchMs >= 1 && o.batchMs <= 1000) {
+		return fmt.Errorf("-batch-ms %v: want 1 to 1000", o.batchMs)
 	}
 	if o.duration <= 0 || o.duration > 10*time.Minute {
 		return fmt.Errorf("-duration %v: want 0 < d ≤ 10m", o.duration)
 	}
 	if o.clients <= 0 {
 		o.clients = o.maxRequests
+	}
+	if o.transport == "stream" {
+		return runStreams(o, out)
 	}
 
 	c, _, err := synth.Generate(synth.Config{Rate: 1000, Duration: 3, LeadIn: 0.5, Tail: 0.3, Segments: []kinchainv1.Segment{
@@ -225,6 +238,9 @@ type child struct {
 func startServer(o options) (*child, error) {
 	args := []string{"-grpc-addr", "127.0.0.1:0", "-http-addr", "127.0.0.1:0", "-metrics-addr", "",
 		"-max-requests", strconv.Itoa(o.maxRequests), "-log-level", "info", "-shutdown-grace", "5s"}
+	if o.transport == "stream" {
+		args = append(args, "-max-streams", strconv.Itoa(o.streams))
+	}
 	var cmd *exec.Cmd
 	how := "kinchain serve run by loadgen"
 	if o.serverBin != "" {
@@ -485,10 +501,7 @@ func (r *recorder) phase(name string, offered float64, elapsed time.Duration, sr
 func closedLoop(o options, call func(context.Context) (string, error), srv *child) phase {
 	var rec recorder
 	self0 := selfCPU()
-	var server0 time.Duration
-	if srv != nil {
-		server0 = procCPU(srv.cmd.Process.Pid)
-	}
+	server0, serverOK := srv.cpu()
 	_, elapsed := backToBack(o, func() {
 		t0 := time.Now()
 		ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
@@ -499,10 +512,8 @@ func closedLoop(o options, call func(context.Context) (string, error), srv *chil
 	p := rec.phase("capacity (closed loop)", 0, elapsed, srv)
 	if p.OK > 0 {
 		p.ClientCPUms = perCall(selfCPU()-self0, p.OK)
-		if srv != nil {
-			if server1 := procCPU(srv.cmd.Process.Pid); server0 > 0 && server1 > server0 {
-				p.ServerCPUms = perCall(server1-server0, p.OK)
-			}
+		if server1, ok := srv.cpu(); ok && serverOK && server1 > server0 {
+			p.ServerCPUms = perCall(server1-server0, p.OK)
 		}
 	}
 	return p
@@ -564,13 +575,14 @@ func selfCPU() time.Duration {
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
-// procCPU is process pid's CPU time so far, 0 when it cannot be read.
-func procCPU(pid int) time.Duration {
-	d, err := procstat.CPU(pid)
-	if err != nil {
-		return 0
+// cpu is the server process's CPU time so far; false without a child
+// server or when /proc cannot be read.
+func (c *child) cpu() (time.Duration, bool) {
+	if c == nil {
+		return 0, false
 	}
-	return d
+	d, err := procstat.CPU(c.cmd.Process.Pid)
+	return d, err == nil
 }
 
 // openLoop starts calls at rate per second for o.duration, each in its own
@@ -602,10 +614,15 @@ func openLoop(o options, name string, rate float64, call func(context.Context) (
 	return rec.phase(name+" (open loop)", rate, time.Since(start), srv)
 }
 
+// printJSON prints v as indented JSON.
+func printJSON(w io.Writer, v any) {
+	b, _ := json.MarshalIndent(v, "", "  ")
+	fmt.Fprintln(w, string(b))
+}
+
 func printReport(w io.Writer, r report, asJSON bool) {
 	if asJSON {
-		b, _ := json.MarshalIndent(r, "", "  ")
-		fmt.Fprintln(w, string(b))
+		printJSON(w, r)
 		return
 	}
 	fmt.Fprintf(w, "kinchain load: %s, server %s, %.0f s per phase\n", r.Transport, r.Server, r.PhaseSeconds)

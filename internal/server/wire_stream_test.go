@@ -1,0 +1,112 @@
+package server
+
+import (
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/encoding/protowire"
+	"google.golang.org/protobuf/proto"
+
+	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+)
+
+// agreeStream checks decodeStreamRequest against proto.Unmarshal (the
+// reference, google.golang.org/protobuf): the same success or failure and,
+// on success, equal messages; then releases the arrays as the handler
+// does, which must not disturb the reference.
+func agreeStream(t *testing.T, b []byte) {
+	t.Helper()
+	want := &kinchainv1.StreamCaptureRequest{}
+	werr := proto.Unmarshal(b, want)
+	got, err := decodeStreamRequest(b)
+	if err != nil {
+		if werr == nil && checkExpansion(b, want.ProtoReflect().Descriptor(), "message") == nil {
+			t.Fatalf("decodeStreamRequest fails (%v), proto.Unmarshal does not", err)
+		}
+		return
+	}
+	if werr != nil {
+		t.Fatalf("decodeStreamRequest decodes what proto.Unmarshal refuses (%v)", werr)
+	}
+	if !proto.Equal(got, want) {
+		t.Fatalf("decodeStreamRequest differs from proto.Unmarshal:\ngot  %v\nwant %v", got, want)
+	}
+	releaseTracks(got.GetBatch().GetTracks())
+}
+
+// TestDecodeStreamRequest: batches (the fast path), headers, and messages
+// that must take proto.Unmarshal's way — a batch and a header in one
+// message (the last oneof member wins), a batch field given twice (merged),
+// an unknown field beside the batch or inside it, unpacked and split
+// sample arrays — plus every message of testdata/bad-stream.
+func TestDecodeStreamRequest(t *testing.T) {
+	enc := func(m proto.Message) []byte { b, _ := proto.Marshal(m); return b }
+	batch := enc(fuzzBatch(0, 40))
+	header := enc(fuzzHeader())
+	unknown := protowire.AppendVarint(protowire.AppendTag(nil, 99, protowire.VarintType), 7)
+	var inner []byte // a batch whose track has unpacked and split arrays and an unknown field
+	{
+		var tr []byte
+		tr = protowire.AppendVarint(protowire.AppendTag(tr, 1, protowire.VarintType), uint64(kinchainv1.Segment_SEGMENT_PELVIS))
+		for _, x := range []float64{0, 0.01} {
+			tr = protowire.AppendFixed64(protowire.AppendTag(tr, 2, protowire.Fixed64Type), math.Float64bits(x))
+		}
+		tr = protowire.AppendBytes(protowire.AppendTag(tr, 3, protowire.BytesType), protowire.AppendFixed64(nil, math.Float64bits(1)))
+		tr = append(tr, unknown...)
+		tr = protowire.AppendBytes(protowire.AppendTag(tr, 3, protowire.BytesType), protowire.AppendFixed64(nil, math.Float64bits(1)))
+		inner = protowire.AppendBytes(protowire.AppendTag(nil, 1, protowire.BytesType), tr)
+	}
+	wrap := func(v []byte) []byte { return protowire.AppendBytes(protowire.AppendTag(nil, 2, protowire.BytesType), v) }
+	cases := map[string][]byte{
+		"batch":                     batch,
+		"header":                    header,
+		"empty batch":               wrap(nil),
+		"batch then header":         append(append([]byte{}, batch...), header...),
+		"header then batch":         append(append([]byte{}, header...), batch...),
+		"batch twice":               append(append([]byte{}, batch...), batch...),
+		"unknown field beside":      append(append([]byte{}, batch...), unknown...),
+		"unknown field in batch":    wrap(append(append([]byte{}, batch[2:]...), unknown...)),
+		"unpacked and split arrays": wrap(inner),
+		"empty message":             nil,
+		"truncated":                 batch[:len(batch)-3],
+	}
+	for name, b := range cases {
+		t.Run(name, func(t *testing.T) { agreeStream(t, b) })
+	}
+	files, err := filepath.Glob(filepath.Join("..", "..", "testdata", "bad-stream", "*.json"))
+	if err != nil || len(files) == 0 {
+		t.Fatalf("no bad-stream corpus: %v", err)
+	}
+	for _, name := range files {
+		raw, err := os.ReadFile(name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var c struct {
+			Messages []json.RawMessage `json:"messages"`
+		}
+		if json.Unmarshal(raw, &c) != nil {
+			continue
+		}
+		for _, m := range c.Messages {
+			r := &kinchainv1.StreamCaptureRequest{}
+			if protojson.Unmarshal(m, r) == nil {
+				agreeStream(t, enc(r))
+			}
+		}
+	}
+}
+
+// FuzzDecodeStreamRequest: decodeStreamRequest agrees with proto.Unmarshal
+// on any bytes.
+func FuzzDecodeStreamRequest(f *testing.F) {
+	for _, m := range []proto.Message{fuzzBatch(0, 40), fuzzHeader(), fuzzBatch(0.4, 3)} {
+		b, _ := proto.Marshal(m)
+		f.Add(b)
+	}
+	f.Fuzz(func(t *testing.T, b []byte) { agreeStream(t, b) })
+}
