@@ -60,7 +60,9 @@ func TestDecodeStreamRequest(t *testing.T) {
 		tr = protowire.AppendBytes(protowire.AppendTag(tr, 3, protowire.BytesType), protowire.AppendFixed64(nil, math.Float64bits(1)))
 		inner = protowire.AppendBytes(protowire.AppendTag(nil, 1, protowire.BytesType), tr)
 	}
-	wrap := func(v []byte) []byte { return protowire.AppendBytes(protowire.AppendTag(nil, 2, protowire.BytesType), v) }
+	wrap := func(v []byte) []byte {
+		return protowire.AppendBytes(protowire.AppendTag(nil, 2, protowire.BytesType), v)
+	}
 	cases := map[string][]byte{
 		"batch":                     batch,
 		"header":                    header,
