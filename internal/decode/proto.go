@@ -111,6 +111,11 @@ func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
 		}
 		k := int(num) - firstTrackArray
 		switch {
+		case num == trackSegmentNumber && typ == protowire.VarintType:
+			// An enum is an int32 on the wire (protobuf.dev encoding
+			// guide): the low 32 bits of the varint; the last one wins.
+			v, _ := protowire.ConsumeVarint(in[n : n+m])
+			t.Segment = kinchainv1.Segment(int32(v))
 		case k < 0 || k >= trackArrayFields:
 			rest = append(rest, in[:n+m]...)
 		case typ == protowire.BytesType:
@@ -128,9 +133,11 @@ func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
 		in = in[n+m:]
 	}
 	if len(rest) > 0 {
+		seg := t.Segment
 		if err := proto.Unmarshal(rest, t); err != nil {
 			return t, err
 		}
+		t.Segment = seg // rest holds no segment field
 	}
 	for k, a := range arrays {
 		if a != nil {
@@ -160,9 +167,11 @@ func appendDoubles(dst []float64, v []byte, f Floats) []float64 {
 	return dst
 }
 
-// Track's repeated double fields are numbers 2 (time_s) to 18 (pz), and
-// Capture.tracks is number 4; init checks both against the descriptors.
+// Track's segment is field 1 and its repeated double fields are numbers 2
+// (time_s) to 18 (pz), and Capture.tracks is number 4; init checks them
+// against the descriptors.
 const (
+	trackSegmentNumber  = 1
 	firstTrackArray     = 2
 	trackArrayFields    = 17
 	captureTracksNumber = 4
@@ -188,6 +197,9 @@ func init() {
 		if len(*trackArray(t, k)) != 1 {
 			panic(fmt.Sprintf("decode: trackArray(%d) is not Track.%s", k, fd.Name()))
 		}
+	}
+	if fd := fields.ByNumber(trackSegmentNumber); fd == nil || fd.Kind() != protoreflect.EnumKind || fd.IsList() {
+		panic("decode: Track field 1 is not the segment enum")
 	}
 	if fd := (&kinchainv1.Capture{}).ProtoReflect().Descriptor().Fields().ByNumber(captureTracksNumber); fd == nil || fd.FullName() != fieldTracks {
 		panic("decode: Capture.tracks is not field 4")

@@ -186,7 +186,11 @@ func TestProtoMatchesUnmarshal(t *testing.T) {
 			msg(4, seg(6), unknown, packed(16, 1), packed(17), packed(18, math.Copysign(0, -1)), unknown),
 		),
 		"segment set twice": msg(4, seg(1), packed(2, 0, 1), seg(3), packed(2, 2)),
-		"empty track":       msg(4),
+		// An enum is an int32: the low 32 bits of the varint count.
+		"segment past int32":      msg(4, seg(1<<40+3), packed(2, 0, 1)),
+		"negative segment":        msg(4, protowire.AppendVarint(tag(nil, 1, protowire.VarintType), uint64(1<<64-1)), packed(2, 0)),
+		"segment with a mounting": msg(4, mounting, seg(6), packed(2, 0)),
+		"empty track":             msg(4),
 		"every array": msg(4, seg(4), packed(2, 1), packed(3, 2), packed(4, 3), packed(5, 4), packed(6, 5), packed(7, 6),
 			packed(8, 7), packed(9, 8), packed(10, 9), packed(11, 10), packed(12, 11), packed(13, 12), packed(14, 13),
 			packed(15, 14), packed(16, 15), packed(17, 16), packed(18, math.Inf(1))),

@@ -16,9 +16,9 @@ import (
 // requests into arrays from floats (decode.FileWith) and gives them back
 // when the call's analysis has returned (releaseRequest): the engine keeps
 // nothing of a request, and its response holds arrays of its own
-// (TestResponseOwnsItsArrays). Stream batches are decoded the same way
-// (decodeStreamRequest) and given back once the session has copied their
-// samples into its buffers; JSON and CSV bodies are decoded as before.
+// (TestResponseOwnsItsArrays). JSON and CSV bodies are decoded as before,
+// and so are stream batches, whose arrays of a few samples cost less to
+// allocate than to recycle (decodeBatch).
 //
 // Only requests of up to maxPooledBytes are recycled. Pooled memory stays
 // live until the second garbage collection after it was given back, so

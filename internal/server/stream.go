@@ -159,9 +159,6 @@ func (s *Server) streamLoop(ss kinchainv1.KinematicsService_StreamCaptureServer)
 					return end(streamEndError, fieldViolation("message", "HEADER_REQUIRED", "the first message must be a header, got a batch"))
 				}
 				rs, err := sess.Push(m.Batch)
-				// The session has copied the samples (stream.Session.Push);
-				// the arrays can serve the next batch (pool.go).
-				releaseTracks(m.Batch.GetTracks())
 				if reason, serr, ok := send(rs); !ok {
 					return reason, serr
 				}

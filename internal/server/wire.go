@@ -271,21 +271,21 @@ func malformedRequest(err error) error {
 		Detail: fmt.Sprintf("not valid protobuf: %v", err)}
 }
 
-// decodeStreamRequest decodes one StreamCaptureRequest after the expansion
-// check. Errors are *validate.Error naming "message". A message that is a
-// batch and nothing else (what clients send 100 times a second per
-// stream) has its tracks decoded by decode.UnmarshalTrack into arrays of
-// the pool, which the caller gives back with releaseTracks once the
-// session has copied the samples; anything else goes to proto.Unmarshal.
-// Both give the same message (TestDecodeStreamRequest).
+// decodeStreamRequest decodes one StreamCaptureRequest. Errors are
+// *validate.Error naming "message". A message that is a batch and nothing
+// else (what a client sends 100 times a second per stream) is decoded by
+// decodeBatch, in 4.4 µs for a 10 ms six-segment batch against 6.0–6.5 µs
+// for the expansion check and proto.Unmarshal (BenchmarkDecodeStreamRequest);
+// anything else takes the expansion check, then proto.Unmarshal. Both give
+// the same message (TestDecodeStreamRequest, FuzzDecodeStreamRequest).
 func decodeStreamRequest(b []byte) (*kinchainv1.StreamCaptureRequest, error) {
 	m := &kinchainv1.StreamCaptureRequest{}
-	if err := checkExpansion(b, m.ProtoReflect().Descriptor(), "message"); err != nil {
-		return nil, err
-	}
 	if batch, ok := decodeBatch(b); ok {
 		m.Message = &kinchainv1.StreamCaptureRequest_Batch{Batch: batch}
 		return m, nil
+	}
+	if err := checkExpansion(b, m.ProtoReflect().Descriptor(), "message"); err != nil {
+		return nil, err
 	}
 	if err := proto.Unmarshal(b, m); err != nil {
 		return nil, &validate.Error{Field: "message", Sample: -1, Reason: validate.ReasonMalformed,
@@ -301,8 +301,16 @@ const (
 )
 
 // decodeBatch decodes b when it is one StreamCaptureRequest.batch field
-// and nothing else, whose SampleBatch holds only tracks; false means
-// "use proto.Unmarshal" (and frees nothing: what it decoded is garbage).
+// and nothing else, whose SampleBatch holds only tracks, with
+// decode.UnmarshalTrack; false means "take the general way". It needs no
+// expansion check of its own: sample arrays decode at most 1:1 (packed)
+// or 8:9 (unpacked, plus slice growth), the rest of a track goes through
+// proto.Unmarshal at no more than the expansion check allows, and the one
+// message that is small on the wire and large in memory, a track, is
+// counted: a batch with more tracks than the check would allow for its
+// size goes the general way, where the check refuses it. The arrays are
+// allocated, not taken from the pool: for arrays of ten samples the pool
+// costs more than it saves.
 func decodeBatch(b []byte) (*kinchainv1.SampleBatch, bool) {
 	num, typ, n := protowire.ConsumeTag(b)
 	if n < 0 || num != streamBatchField || typ != protowire.BytesType {
@@ -322,7 +330,10 @@ func decodeBatch(b []byte) (*kinchainv1.SampleBatch, bool) {
 		if m < 0 {
 			return nil, false
 		}
-		t, err := decode.UnmarshalTrack(tb, floats)
+		if (len(batch.Tracks)+1)*costMessage > maxExpansion*len(b)+expansionSlack {
+			return nil, false
+		}
+		t, err := decode.UnmarshalTrack(tb, nil)
 		if err != nil {
 			return nil, false
 		}

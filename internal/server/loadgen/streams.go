@@ -108,8 +108,12 @@ type streamReport struct {
 	OK                 int            `json:"ok"`
 	Codes              map[string]int `json:"codes"`
 	ServerCPUmsPerSec  float64        `json:"server_cpu_ms_per_stream_second,omitempty"`
+	SteadyFromS        float64        `json:"steady_from_s,omitempty"`
+	SteadyToS          float64        `json:"steady_to_s,omitempty"`
+	SteadyCPUmsPerSec  float64        `json:"steady_server_cpu_ms_per_stream_second,omitempty"`
 	ClientCPUmsPerSec  float64        `json:"client_cpu_ms_per_stream_second"`
 	StreamsPerCore     float64        `json:"streams_per_core,omitempty"`
+	SteadyPerCore      float64        `json:"steady_streams_per_core,omitempty"`
 	SendLagP50ms       float64        `json:"send_lag_p50_ms"`
 	SendLagP99ms       float64        `json:"send_lag_p99_ms"`
 	SendLagMaxms       float64        `json:"send_lag_max_ms"`
@@ -160,6 +164,26 @@ func runStreams(o options, out io.Writer) error {
 	self0 := selfCPU()
 	server0, serverOK := srv.cpu()
 	start := time.Now()
+	// The steady window: every stream is open, the rings have filled
+	// (stream.Limits.MaxBufferedSeconds is 12 s) and the heap has grown to
+	// its working size, so page faults of first use are behind.
+	steadyFrom := math.Min(15, sess.seconds/2)
+	steadyTo := sess.seconds
+	steady := make(chan [2]time.Duration, 1)
+	if srv != nil && steadyTo-steadyFrom >= 5 {
+		go func() {
+			time.Sleep(time.Until(start.Add(time.Duration(steadyFrom * float64(time.Second)))))
+			a, ok1 := srv.cpu()
+			time.Sleep(time.Until(start.Add(time.Duration(steadyTo * float64(time.Second)))))
+			b, ok2 := srv.cpu()
+			if ok1 && ok2 {
+				steady <- [2]time.Duration{a, b}
+			}
+			close(steady)
+		}()
+	} else {
+		close(steady)
+	}
 	var wg sync.WaitGroup
 	for i := range results {
 		wg.Add(1)
@@ -180,6 +204,11 @@ func runStreams(o options, out io.Writer) error {
 			rep.StreamsPerCore = 1000 / rep.ServerCPUmsPerSec
 		}
 		rep.PeakRSSMiB = srv.hwm()
+	}
+	if w, ok := <-steady; ok && w[1] > w[0] {
+		rep.SteadyFromS, rep.SteadyToS = steadyFrom, steadyTo
+		rep.SteadyCPUmsPerSec = float64(w[1]-w[0]) / float64(time.Millisecond) / (float64(o.streams) * (steadyTo - steadyFrom))
+		rep.SteadyPerCore = 1000 / rep.SteadyCPUmsPerSec
 	}
 	var lags, impacts []time.Duration
 	for _, r := range results {
@@ -304,6 +333,10 @@ func printStreamReport(w io.Writer, r streamReport, asJSON bool) {
 	fmt.Fprintf(w, "streams: %s\n", strings.Join(codes, " "))
 	if r.ServerCPUmsPerSec > 0 {
 		fmt.Fprintf(w, "server CPU: %.2f ms per stream-second → %.0f live streams per core\n", r.ServerCPUmsPerSec, r.StreamsPerCore)
+	}
+	if r.SteadyCPUmsPerSec > 0 {
+		fmt.Fprintf(w, "server CPU, steady (%.0f–%.0f s, all streams open, buffers full): %.2f ms per stream-second → %.0f live streams per core\n",
+			r.SteadyFromS, r.SteadyToS, r.SteadyCPUmsPerSec, r.SteadyPerCore)
 	}
 	fmt.Fprintf(w, "client CPU: %.2f ms per stream-second\n", r.ClientCPUmsPerSec)
 	fmt.Fprintf(w, "send lag against the schedule: p50 %.1f ms, p99 %.1f ms, max %.1f ms\n", r.SendLagP50ms, r.SendLagP99ms, r.SendLagMaxms)
