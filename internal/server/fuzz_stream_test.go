@@ -114,25 +114,7 @@ func newFuzzServer(tb testing.TB) *Server {
 // field violation; never another code, never a panic. Seeds: every stream
 // of testdata/bad-stream, and good streams.
 func FuzzStream(f *testing.F) {
-	files, _ := filepath.Glob(filepath.Join("..", "..", "testdata", "bad-stream", "*.json"))
-	for _, name := range files {
-		b, err := os.ReadFile(name)
-		if err != nil {
-			f.Fatal(err)
-		}
-		var c struct {
-			Messages []json.RawMessage `json:"messages"`
-		}
-		if json.Unmarshal(b, &c) != nil {
-			continue
-		}
-		var msgs []proto.Message
-		for _, m := range c.Messages {
-			r := &kinchainv1.StreamCaptureRequest{}
-			if protojson.Unmarshal(m, r) == nil {
-				msgs = append(msgs, r)
-			}
-		}
+	for _, msgs := range badStreams(f) {
 		f.Add(joinMessages(msgs...))
 	}
 	f.Add(joinMessages(fuzzHeader(), fuzzBatch(0, 40), fuzzBatch(0.4, 40)))
@@ -182,4 +164,36 @@ func fuzzBatch(t0 float64, n int) *kinchainv1.StreamCaptureRequest {
 		sb.Tracks = append(sb.Tracks, tr)
 	}
 	return &kinchainv1.StreamCaptureRequest{Message: &kinchainv1.StreamCaptureRequest_Batch{Batch: sb}}
+}
+
+// badStreams returns the messages of every stream of testdata/bad-stream
+// (those protojson reads; a file's own mistakes may leave some out).
+func badStreams(tb testing.TB) [][]proto.Message {
+	tb.Helper()
+	files, err := filepath.Glob(filepath.Join("..", "..", "testdata", "bad-stream", "*.json"))
+	if err != nil || len(files) == 0 {
+		tb.Fatalf("no bad-stream corpus: %v", err)
+	}
+	var out [][]proto.Message
+	for _, name := range files {
+		b, err := os.ReadFile(name)
+		if err != nil {
+			tb.Fatal(err)
+		}
+		var c struct {
+			Messages []json.RawMessage `json:"messages"`
+		}
+		if json.Unmarshal(b, &c) != nil {
+			continue
+		}
+		var msgs []proto.Message
+		for _, m := range c.Messages {
+			r := &kinchainv1.StreamCaptureRequest{}
+			if protojson.Unmarshal(m, r) == nil {
+				msgs = append(msgs, r)
+			}
+		}
+		out = append(out, msgs)
+	}
+	return out
 }

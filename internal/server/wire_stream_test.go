@@ -1,14 +1,10 @@
 package server
 
 import (
-	"encoding/json"
 	"errors"
 	"math"
-	"os"
-	"path/filepath"
 	"testing"
 
-	"google.golang.org/protobuf/encoding/protojson"
 	"google.golang.org/protobuf/encoding/protowire"
 	"google.golang.org/protobuf/proto"
 
@@ -89,26 +85,9 @@ func TestDecodeStreamRequest(t *testing.T) {
 	if _, err := decodeStreamRequest(wrap(bomb)); !errors.As(err, &ve) || ve.Reason != validate.ReasonTooLarge || ve.Field != "message" {
 		t.Errorf("a batch of 50,000 empty tracks: %v, want message too_large", err)
 	}
-	files, err := filepath.Glob(filepath.Join("..", "..", "testdata", "bad-stream", "*.json"))
-	if err != nil || len(files) == 0 {
-		t.Fatalf("no bad-stream corpus: %v", err)
-	}
-	for _, name := range files {
-		raw, err := os.ReadFile(name)
-		if err != nil {
-			t.Fatal(err)
-		}
-		var c struct {
-			Messages []json.RawMessage `json:"messages"`
-		}
-		if json.Unmarshal(raw, &c) != nil {
-			continue
-		}
-		for _, m := range c.Messages {
-			r := &kinchainv1.StreamCaptureRequest{}
-			if protojson.Unmarshal(m, r) == nil {
-				agreeStream(t, enc(r))
-			}
+	for _, msgs := range badStreams(t) {
+		for _, m := range msgs {
+			agreeStream(t, enc(m))
 		}
 	}
 }

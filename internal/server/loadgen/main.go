@@ -146,20 +146,12 @@ func run(args []string, out io.Writer) error {
 	}
 	req := &kinchainv1.AnalyzeCaptureRequest{Capture: c}
 
-	var srv *child
-	addr := o.addr
-	if addr == "" {
-		if srv, err = startServer(o); err != nil {
-			return err
-		}
-		defer srv.stop()
-		addr = srv.grpcAddr
-		if o.transport == "http" {
-			addr = srv.httpAddr
-		}
-	}
-	if err := loopbackOnly(addr); err != nil {
+	srv, addr, err := serverFor(o)
+	if err != nil {
 		return err
+	}
+	if srv != nil {
+		defer srv.stop()
 	}
 	call, closeFn, err := newCaller(o.transport, addr, req)
 	if err != nil {
@@ -213,6 +205,31 @@ func run(args []string, out io.Writer) error {
 		}
 	}
 	return nil
+}
+
+// serverFor starts the child server, unless -addr names one, and returns
+// the address to drive (the HTTP port for -transport http, else gRPC's),
+// checked to be on loopback; the caller stops the child.
+func serverFor(o options) (*child, string, error) {
+	addr := o.addr
+	var srv *child
+	if addr == "" {
+		var err error
+		if srv, err = startServer(o); err != nil {
+			return nil, "", err
+		}
+		addr = srv.grpcAddr
+		if o.transport == "http" {
+			addr = srv.httpAddr
+		}
+	}
+	if err := loopbackOnly(addr); err != nil {
+		if srv != nil {
+			srv.stop()
+		}
+		return nil, "", err
+	}
+	return srv, addr, nil
 }
 
 // loopbackOnly refuses any address that is not on the loopback interface.

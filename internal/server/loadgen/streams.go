@@ -128,17 +128,12 @@ func runStreams(o options, out io.Writer) error {
 	if err != nil {
 		return err
 	}
-	var srv *child
-	addr := o.addr
-	if addr == "" {
-		if srv, err = startServer(o); err != nil {
-			return err
-		}
-		defer srv.stop()
-		addr = srv.grpcAddr
-	}
-	if err := loopbackOnly(addr); err != nil {
+	srv, addr, err := serverFor(o)
+	if err != nil {
 		return err
+	}
+	if srv != nil {
+		defer srv.stop()
 	}
 	// A connection per 100 streams (HTTP/2 multiplexes them).
 	var conns []*grpc.ClientConn
