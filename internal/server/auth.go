@@ -11,6 +11,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"log/slog"
 	"math"
 	"os"
 	"strconv"
@@ -263,22 +264,23 @@ func (s *Server) authorize(ctx context.Context, transport, authz string) (contex
 	return context.WithValue(ctx, principalKey{}, t.Name), nil
 }
 
-// tlsSetup holds what New loaded for TLS: the server certificate and, for
-// mutual TLS, the client CA pool.
+// tlsSetup holds what New loaded for TLS: the server certificate (renewed
+// from its files while serving, certs.go) and, for mutual TLS, the client
+// CA pool.
 type tlsSetup struct {
-	cert      tls.Certificate
+	certs     *certReloader
 	clientCAs *x509.CertPool
 }
 
-func loadTLS(cfg Config) (*tlsSetup, error) {
+func loadTLS(cfg Config, m *metrics, log *slog.Logger) (*tlsSetup, error) {
 	if !cfg.TLS() {
 		return nil, nil
 	}
-	cert, err := tls.LoadX509KeyPair(cfg.TLSCertFile, cfg.TLSKeyFile)
+	certs, err := newCertReloader(cfg.TLSCertFile, cfg.TLSKeyFile, m, log)
 	if err != nil {
 		return nil, fmt.Errorf("server TLS: %w", err)
 	}
-	ts := &tlsSetup{cert: cert}
+	ts := &tlsSetup{certs: certs}
 	if cfg.TLSClientCAFile != "" {
 		pem, err := os.ReadFile(cfg.TLSClientCAFile)
 		if err != nil {
@@ -299,7 +301,7 @@ func loadTLS(cfg Config) (*tlsSetup, error) {
 // client's chain as intermediates, extended key usage clientAuth) — so
 // that a failure can be counted by reason before the handshake fails.
 func (ts *tlsSetup) config(m *metrics, transport string) *tls.Config {
-	c := &tls.Config{Certificates: []tls.Certificate{ts.cert}, MinVersion: tls.VersionTLS12}
+	c := &tls.Config{GetCertificate: ts.certs.get, MinVersion: tls.VersionTLS12}
 	if ts.clientCAs == nil {
 		return c
 	}

@@ -1,6 +1,9 @@
 package server
 
-import "context"
+import (
+	"context"
+	"time"
+)
 
 // GatewayMarshaler exposes the gateway's marshaler to the external tests
 // (the benchmark's loopback gateway uses the same one).
@@ -11,4 +14,12 @@ var GatewayMarshaler = gatewayMarshaler
 func CheckTokenForTest(s *Server, authz string) error {
 	_, err := s.authorize(context.Background(), transportHTTP, authz)
 	return err
+}
+
+// SetCertCheckIntervalForTest sets how often the TLS key pair files are
+// looked at, and returns a function restoring the previous value.
+func SetCertCheckIntervalForTest(d time.Duration) func() {
+	old := certCheckInterval
+	certCheckInterval = d
+	return func() { certCheckInterval = old }
 }

@@ -72,6 +72,8 @@ type metrics struct {
 	panics        prometheus.Counter
 	authFailures  *prometheus.CounterVec // transport, reason
 	rateLimited   *prometheus.CounterVec // token (name from the token file)
+	tlsReloads    *prometheus.CounterVec // result (ok, error)
+	tlsExpiry     *prometheus.GaugeVec   // cert_file
 	buildInfo     *prometheus.GaugeVec   // version, commit, goversion
 }
 
@@ -148,6 +150,14 @@ func newMetrics(reg prometheus.Registerer) (*metrics, error) {
 			Namespace: namespace, Name: "rate_limited_total",
 			Help: "Requests refused because their bearer token was over its rate limit, by token name (from the token file).",
 		}, []string{"token"}),
+		tlsReloads: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: namespace, Name: "tls_certificate_reloads_total",
+			Help: "Times the server certificate's files changed while serving, by result: ok (the new pair is served) or error (it did not load; the previous one stays).",
+		}, []string{"result"}),
+		tlsExpiry: prometheus.NewGaugeVec(prometheus.GaugeOpts{
+			Namespace: namespace, Name: "tls_certificate_expiry_timestamp_seconds",
+			Help: "NotAfter of the served TLS certificate, Unix time, by certificate file name; absent without TLS.",
+		}, []string{"cert_file"}),
 		buildInfo: prometheus.NewGaugeVec(prometheus.GaugeOpts{
 			Namespace: namespace, Name: "build_info",
 			Help: "Always 1; the labels identify the build.",
@@ -176,7 +186,7 @@ func newMetrics(reg prometheus.Registerer) (*metrics, error) {
 		m.httpRequests, m.httpDuration, m.httpBodyBytes,
 		m.inFlight, m.rejected, m.liveStreams, m.streamsEnded,
 		m.samples, m.swings, m.validation, m.panics,
-		m.authFailures, m.rateLimited, m.buildInfo,
+		m.authFailures, m.rateLimited, m.tlsReloads, m.tlsExpiry, m.buildInfo,
 	}
 	for _, c := range cs {
 		if err := reg.Register(c); err != nil {

@@ -119,7 +119,7 @@ func New(cfg Config, a Analyzer, streams StreamFactory, reg *prometheus.Registry
 		}
 	}
 
-	tlsSet, err := loadTLS(cfg)
+	tlsSet, err := loadTLS(cfg, m, log)
 	if err != nil {
 		return nil, err
 	}
