@@ -38,8 +38,8 @@ type certReloader struct {
 	m                 *metrics
 	log               *slog.Logger
 
-	mu    sync.Mutex
-	cert  *tls.Certificate
+	mu     sync.Mutex
+	cert   *tls.Certificate
 	stamp  [2]fileStamp // of certFile and keyFile when cert was loaded
 	failed [2]fileStamp // of the files when they last failed to load
 	next   time.Time    // when to look at the files again
