@@ -186,6 +186,17 @@ func scrape(t *testing.T) (*exported, error) {
 			}
 		}
 	}
+	// Series that exist only with TLS on: a second server, serving TLS
+	// with a throwaway certificate, adds its metric families.
+	tlsFams, err := scrapeTLSServer(t)
+	if err != nil {
+		return nil, err
+	}
+	for name, f := range tlsFams {
+		if _, ok := fams[name]; !ok {
+			fams[name] = f
+		}
+	}
 	for name, f := range fams {
 		for _, m := range f.GetMetric() {
 			switch f.GetType() {
@@ -203,6 +214,31 @@ func scrape(t *testing.T) (*exported, error) {
 		}
 	}
 	return e, nil
+}
+
+// scrapeTLSServer starts a server with TLS on (a self-signed certificate
+// made for the purpose) and returns the metric families of its /metrics,
+// unused otherwise: the TLS certificate's series exist only then.
+func scrapeTLSServer(t *testing.T) (map[string]*dto.MetricFamily, error) {
+	dir := t.TempDir()
+	cfg := server.DefaultConfig()
+	cfg.GRPCAddr, cfg.HTTPAddr, cfg.MetricsAddr = "127.0.0.1:0", "127.0.0.1:0", "127.0.0.1:0"
+	cfg.TLSCertFile, cfg.TLSKeyFile = filepath.Join(dir, "tls.crt"), filepath.Join(dir, "tls.key")
+	selfSignedCert(t, cfg.TLSCertFile, cfg.TLSKeyFile)
+	srv, err := server.New(cfg, engine.New(engine.Config{}), nil, prometheus.NewRegistry(), slog.New(slog.NewJSONHandler(io.Discard, nil)))
+	if err != nil {
+		return nil, err
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	served := make(chan error, 1)
+	go func() { served <- srv.Serve(ctx) }()
+	defer func() { cancel(); <-served }()
+	code, text, err := httpGet("http://" + srv.Addrs().Metrics + "/metrics")
+	if err != nil || code != 200 {
+		return nil, fmt.Errorf("GET /metrics of the TLS server: %d %v", code, err)
+	}
+	tp := expfmt.NewTextParser(model.UTF8Validation)
+	return tp.TextToMetricFamilies(bytes.NewReader(text))
 }
 
 // promParser is a stock Prometheus's PromQL parser (no experimental
