@@ -99,15 +99,12 @@ func scrape(t *testing.T) (*exported, error) {
 		}
 		return s, nil
 	}
-	log := slog.New(slog.NewJSONHandler(io.Discard, nil))
-	srv, err := server.New(cfg, engine.New(engine.Config{}), streams, prometheus.NewRegistry(), log)
+	srv, stop, err := serveForScrape(cfg, streams)
 	if err != nil {
 		return nil, err
 	}
-	ctx, cancel := context.WithCancel(context.Background())
-	served := make(chan error, 1)
-	go func() { served <- srv.Serve(ctx) }()
-	defer func() { cancel(); <-served }()
+	defer stop()
+	ctx := context.Background()
 	a := srv.Addrs()
 
 	c, _, err := synth.Generate(synth.Config{})
@@ -216,6 +213,19 @@ func scrape(t *testing.T) (*exported, error) {
 	return e, nil
 }
 
+// serveForScrape starts a server with the real engine on cfg; stop ends
+// it and waits for Serve to return.
+func serveForScrape(cfg server.Config, streams server.StreamFactory) (*server.Server, func(), error) {
+	srv, err := server.New(cfg, engine.New(engine.Config{}), streams, prometheus.NewRegistry(), slog.New(slog.NewJSONHandler(io.Discard, nil)))
+	if err != nil {
+		return nil, nil, err
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	served := make(chan error, 1)
+	go func() { served <- srv.Serve(ctx) }()
+	return srv, func() { cancel(); <-served }, nil
+}
+
 // scrapeTLSServer starts a server with TLS on (a self-signed certificate
 // made for the purpose) and returns the metric families of its /metrics,
 // unused otherwise: the TLS certificate's series exist only then.
@@ -225,14 +235,11 @@ func scrapeTLSServer(t *testing.T) (map[string]*dto.MetricFamily, error) {
 	cfg.GRPCAddr, cfg.HTTPAddr, cfg.MetricsAddr = "127.0.0.1:0", "127.0.0.1:0", "127.0.0.1:0"
 	cfg.TLSCertFile, cfg.TLSKeyFile = filepath.Join(dir, "tls.crt"), filepath.Join(dir, "tls.key")
 	selfSignedCert(t, cfg.TLSCertFile, cfg.TLSKeyFile)
-	srv, err := server.New(cfg, engine.New(engine.Config{}), nil, prometheus.NewRegistry(), slog.New(slog.NewJSONHandler(io.Discard, nil)))
+	srv, stop, err := serveForScrape(cfg, nil)
 	if err != nil {
 		return nil, err
 	}
-	ctx, cancel := context.WithCancel(context.Background())
-	served := make(chan error, 1)
-	go func() { served <- srv.Serve(ctx) }()
-	defer func() { cancel(); <-served }()
+	defer stop()
 	code, text, err := httpGet("http://" + srv.Addrs().Metrics + "/metrics")
 	if err != nil || code != 200 {
 		return nil, fmt.Errorf("GET /metrics of the TLS server: %d %v", code, err)

@@ -45,10 +45,10 @@ type certReloader struct {
 	next   time.Time    // when to look at the files again
 }
 
-// fileStamp is what tells a file changed.
+// fileStamp is what tells a file changed: its modification time (Unix
+// nanoseconds) and size.
 type fileStamp struct {
-	mod  time.Time
-	size int64
+	mod, size int64
 }
 
 func stamps(files ...string) ([2]fileStamp, error) {
@@ -58,7 +58,7 @@ func stamps(files ...string) ([2]fileStamp, error) {
 		if err != nil {
 			return st, err
 		}
-		st[i] = fileStamp{fi.ModTime(), fi.Size()}
+		st[i] = fileStamp{fi.ModTime().UnixNano(), fi.Size()}
 	}
 	return st, nil
 }
