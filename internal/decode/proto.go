@@ -12,6 +12,7 @@ import (
 	"google.golang.org/protobuf/reflect/protoreflect"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/validate"
 )
 
@@ -98,7 +99,7 @@ func UnmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) { return unma
 // the other fields with proto.Unmarshal.
 func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
 	t := &kinchainv1.Track{}
-	var arrays [trackArrayFields][]float64
+	var arrays [capture.NumArrays][]float64 // indexed as capture.TrackArrays
 	var rest []byte
 	for in := b; len(in) > 0; {
 		num, typ, n := protowire.ConsumeTag(in)
@@ -116,7 +117,7 @@ func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
 			// guide): the low 32 bits of the varint; the last one wins.
 			v, _ := protowire.ConsumeVarint(in[n : n+m])
 			t.Segment = kinchainv1.Segment(int32(v))
-		case k < 0 || k >= trackArrayFields:
+		case k < 0 || k >= capture.NumArrays:
 			rest = append(rest, in[:n+m]...)
 		case typ == protowire.BytesType:
 			v, _ := protowire.ConsumeBytes(in[n : n+m])
@@ -139,11 +140,7 @@ func unmarshalTrack(b []byte, f Floats) (*kinchainv1.Track, error) {
 		}
 		t.Segment = seg // rest holds no segment field
 	}
-	for k, a := range arrays {
-		if a != nil {
-			*trackArray(t, k) = a
-		}
-	}
+	capture.SetTrackArrays(t, &arrays) // rest held none of them
 	return t, nil
 }
 
@@ -168,34 +165,20 @@ func appendDoubles(dst []float64, v []byte, f Floats) []float64 {
 }
 
 // Track's segment is field 1 and its repeated double fields are numbers 2
-// (time_s) to 18 (pz), and Capture.tracks is number 4; init checks them
-// against the descriptors.
+// (time_s) to 18 (pz), in the order of capture.TrackArrays, and
+// Capture.tracks is number 4; init checks them against the descriptors.
 const (
 	trackSegmentNumber  = 1
 	firstTrackArray     = 2
-	trackArrayFields    = 17
 	captureTracksNumber = 4
 )
 
-// trackArray returns Track field number firstTrackArray+k.
-func trackArray(t *kinchainv1.Track, k int) *[]float64 {
-	return [trackArrayFields]*[]float64{
-		&t.TimeS, &t.Qw, &t.Qx, &t.Qy, &t.Qz, &t.Gx, &t.Gy, &t.Gz,
-		&t.Ax, &t.Ay, &t.Az, &t.Mx, &t.My, &t.Mz, &t.Px, &t.Py, &t.Pz,
-	}[k]
-}
-
 func init() {
 	fields := (&kinchainv1.Track{}).ProtoReflect().Descriptor().Fields()
-	for k := 0; k < trackArrayFields; k++ {
+	for k, name := range capture.ArrayNames {
 		fd := fields.ByNumber(protowire.Number(firstTrackArray + k))
-		if fd == nil || fd.Kind() != protoreflect.DoubleKind || !fd.IsList() {
-			panic(fmt.Sprintf("decode: Track field %d is not a repeated double", firstTrackArray+k))
-		}
-		t := &kinchainv1.Track{}
-		t.ProtoReflect().Mutable(fd).List().Append(protoreflect.ValueOfFloat64(1))
-		if len(*trackArray(t, k)) != 1 {
-			panic(fmt.Sprintf("decode: trackArray(%d) is not Track.%s", k, fd.Name()))
+		if fd == nil || string(fd.Name()) != name || fd.Kind() != protoreflect.DoubleKind || !fd.IsList() {
+			panic(fmt.Sprintf("decode: Track field %d is not the repeated double %s", firstTrackArray+k, name))
 		}
 	}
 	if fd := fields.ByNumber(trackSegmentNumber); fd == nil || fd.Kind() != protoreflect.EnumKind || fd.IsList() {

@@ -8,8 +8,10 @@ import (
 
 	"google.golang.org/protobuf/encoding/protojson"
 	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/reflect/protoreflect"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 )
 
 // A JSON capture is almost all sample arrays: 18,000 samples of six
@@ -37,59 +39,15 @@ import (
 // strconv.ParseFloat's.
 
 // trackArrays maps the proto and JSON names of Track's repeated double
-// fields to the field.
+// fields to their index in capture.TrackArrays.
 var trackArrays = func() map[string]int {
-	names := [][2]string{
-		{"time_s", "timeS"}, {"qw", "qw"}, {"qx", "qx"}, {"qy", "qy"}, {"qz", "qz"},
-		{"gx", "gx"}, {"gy", "gy"}, {"gz", "gz"}, {"ax", "ax"}, {"ay", "ay"}, {"az", "az"},
-		{"mx", "mx"}, {"my", "my"}, {"mz", "mz"}, {"px", "px"}, {"py", "py"}, {"pz", "pz"},
-	}
+	fields := (&kinchainv1.Track{}).ProtoReflect().Descriptor().Fields()
 	m := map[string]int{}
-	for i, n := range names {
-		m[n[0]], m[n[1]] = i, i
+	for k, name := range capture.ArrayNames {
+		m[name], m[fields.ByName(protoreflect.Name(name)).JSONName()] = k, k
 	}
 	return m
 }()
-
-// setTrackArray stores a parsed array in field i of t (trackArrays order).
-func setTrackArray(t *kinchainv1.Track, i int, v []float64) {
-	switch i {
-	case 0:
-		t.TimeS = v
-	case 1:
-		t.Qw = v
-	case 2:
-		t.Qx = v
-	case 3:
-		t.Qy = v
-	case 4:
-		t.Qz = v
-	case 5:
-		t.Gx = v
-	case 6:
-		t.Gy = v
-	case 7:
-		t.Gz = v
-	case 8:
-		t.Ax = v
-	case 9:
-		t.Ay = v
-	case 10:
-		t.Az = v
-	case 11:
-		t.Mx = v
-	case 12:
-		t.My = v
-	case 13:
-		t.Mz = v
-	case 14:
-		t.Px = v
-	case 15:
-		t.Py = v
-	case 16:
-		t.Pz = v
-	}
-}
 
 // decodeRequestJSON unmarshals protojson b into m (see above).
 func decodeRequestJSON(b []byte, opts protojson.UnmarshalOptions, m *kinchainv1.AnalyzeCaptureRequest) error {
@@ -219,8 +177,8 @@ func trackList(b []byte, i int, opts protojson.UnmarshalOptions) ([]*kinchainv1.
 // just past the '}'. The sample arrays are parsed here; the other members
 // are copied into *other and decoded by protojson, which checks them.
 func track(b []byte, i int, opts protojson.UnmarshalOptions, other *[]byte) (*kinchainv1.Track, int, bool) {
-	t := &kinchainv1.Track{}
-	var seen [17]bool
+	var arrays [capture.NumArrays][]float64
+	var seen [capture.NumArrays]bool
 	o := append((*other)[:0], '{')
 	end, ok := object(b, i, func(key string, k, v int) (int, bool) {
 		f, isArr := trackArrays[key]
@@ -238,28 +196,24 @@ func track(b []byte, i int, opts protojson.UnmarshalOptions, other *[]byte) (*ki
 			return 0, false
 		}
 		seen[f] = true
-		a, e, ok := numbers(b, v)
-		setTrackArray(t, f, a)
+		var e int
+		var ok bool
+		arrays[f], e, ok = numbers(b, v)
 		return e, ok
 	})
 	*other = o
 	if !ok {
 		return nil, 0, false
 	}
+	t := &kinchainv1.Track{}
 	if len(o) > 1 {
 		o = append(o, '}')
 		*other = o
-		// Unmarshal resets its target: decode into a scratch track and
-		// move the arrays over.
-		s := &kinchainv1.Track{}
-		if err := opts.Unmarshal(o, s); err != nil {
+		if err := opts.Unmarshal(o, t); err != nil {
 			return nil, 0, false
 		}
-		s.TimeS, s.Qw, s.Qx, s.Qy, s.Qz = t.TimeS, t.Qw, t.Qx, t.Qy, t.Qz
-		s.Gx, s.Gy, s.Gz, s.Ax, s.Ay, s.Az = t.Gx, t.Gy, t.Gz, t.Ax, t.Ay, t.Az
-		s.Mx, s.My, s.Mz, s.Px, s.Py, s.Pz = t.Mx, t.My, t.Mz, t.Px, t.Py, t.Pz
-		t = s
 	}
+	capture.SetTrackArrays(t, &arrays) // o held none of them
 	return t, end, true
 }
 

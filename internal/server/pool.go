@@ -5,6 +5,7 @@ import (
 	"sync"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/capture"
 )
 
 // Recycling the sample arrays of binary requests.
@@ -87,21 +88,12 @@ func (p *floatPool) put(s []float64) {
 // releaseRequest gives the sample arrays of req's tracks to the pool and
 // clears them from req.
 func releaseRequest(req *kinchainv1.AnalyzeCaptureRequest) {
-	releaseTracks(req.GetCapture().GetTracks())
-}
-
-// releaseTracks gives the sample arrays of tracks to the pool and clears
-// them from the tracks.
-func releaseTracks(tracks []*kinchainv1.Track) {
-	for _, t := range tracks {
-		for _, a := range []*[]float64{
-			&t.TimeS, &t.Qw, &t.Qx, &t.Qy, &t.Qz, &t.Gx, &t.Gy, &t.Gz,
-			&t.Ax, &t.Ay, &t.Az, &t.Mx, &t.My, &t.Mz, &t.Px, &t.Py, &t.Pz,
-		} {
-			if *a != nil {
-				floats.put(*a)
-				*a = nil
+	for _, t := range req.GetCapture().GetTracks() {
+		for _, a := range capture.TrackArrays(t) {
+			if a != nil {
+				floats.put(a)
 			}
 		}
+		capture.SetTrackArrays(t, &[capture.NumArrays][]float64{})
 	}
 }
