@@ -3,7 +3,6 @@ package kinematics
 import (
 	"math"
 	"math/rand/v2"
-	"syscall"
 	"testing"
 
 	"gonum.org/v1/gonum/spatial/r3"
@@ -11,6 +10,7 @@ import (
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/capture"
 	"github.com/kinchain/kinchain/internal/condition"
+	"github.com/kinchain/kinchain/internal/procstat"
 	"github.com/kinchain/kinchain/internal/rot"
 )
 
@@ -46,27 +46,16 @@ func benchCaptureAt(rate float64) *capture.Capture {
 	return c
 }
 
-// cpuNanos returns the CPU time (user + system) the process has used, ns.
-// On a shared machine it measures the work done better than wall time,
-// which also counts time spent waiting for a core.
-func cpuNanos() int64 {
-	var ru syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
-		return 0
-	}
-	return ru.Utime.Nano() + ru.Stime.Nano()
-}
-
 // perSample runs op b.N times and reports wall and CPU time per input
 // orientation sample.
 func perSample(b *testing.B, samples int, op func()) {
 	b.ReportAllocs()
 	b.ResetTimer()
-	cpu0 := cpuNanos()
+	cpu0 := int64(procstat.Self())
 	for i := 0; i < b.N; i++ {
 		op()
 	}
-	cpu := cpuNanos() - cpu0
+	cpu := int64(procstat.Self()) - cpu0
 	b.StopTimer()
 	n := float64(b.N) * float64(samples)
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/n, "ns/sample")

@@ -1,7 +1,8 @@
 // Package procstat reads a Linux process's CPU time and resident memory
-// from /proc, as proc(5) documents them: the server-side figures of
+// from /proc, as proc(5) documents them — the server-side figures of
 // kinchain's load script (internal/server/loadgen) and of the capacity
-// benchmark in deploy/, which run the server as a process of its own.
+// benchmark in deploy/, which run the server as a process of its own —
+// and this process's CPU time (Self), which the benchmarks report.
 package procstat
 
 import (
@@ -11,6 +12,7 @@ import (
 	"os"
 	"strconv"
 	"strings"
+	"syscall"
 	"time"
 )
 
@@ -42,6 +44,17 @@ func CPU(pid int) (time.Duration, error) {
 		return 0, fmt.Errorf("procstat: utime/stime: %w", err)
 	}
 	return time.Duration(ut+st) * (time.Second / userHZ), nil
+}
+
+// Self returns the user + system CPU time this process has used so far,
+// from getrusage(2) (microsecond resolution, unlike /proc's ticks); 0 when
+// it cannot be read.
+func Self() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
 // RSS returns the resident set of process pid now (VmRSS), bytes.

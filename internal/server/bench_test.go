@@ -10,7 +10,6 @@ import (
 	"net/http"
 	"sync"
 	"sync/atomic"
-	"syscall"
 	"testing"
 	"time"
 
@@ -22,6 +21,7 @@ import (
 	kclient "github.com/kinchain/kinchain/api/client"
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
 	"github.com/kinchain/kinchain/internal/engine"
+	"github.com/kinchain/kinchain/internal/procstat"
 	"github.com/kinchain/kinchain/internal/server"
 	"github.com/kinchain/kinchain/internal/synth"
 )
@@ -45,15 +45,6 @@ func benchCapture(tb testing.TB) *kinchainv1.Capture {
 	return c
 }
 
-// cpuTime is the process's user + system CPU time so far.
-func cpuTime() time.Duration {
-	var ru syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
-		return 0
-	}
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
-}
-
 // runConcurrent calls f b.N times from c goroutines and reports the
 // throughput as analyses/s, and the process CPU time (client and server
 // together) per analysis as cpu-ms/op. On a shared machine the CPU time is
@@ -63,7 +54,7 @@ func runConcurrent(b *testing.B, c int, f func() error) {
 	var wg sync.WaitGroup
 	var failed atomic.Bool
 	b.ResetTimer()
-	cpu0 := cpuTime()
+	cpu0 := procstat.Self()
 	for i := 0; i < c; i++ {
 		wg.Add(1)
 		go func() {
@@ -80,7 +71,7 @@ func runConcurrent(b *testing.B, c int, f func() error) {
 	wg.Wait()
 	b.StopTimer()
 	b.ReportMetric(float64(b.N)/b.Elapsed().Seconds(), "analyses/s")
-	b.ReportMetric(float64(cpuTime()-cpu0)/float64(time.Millisecond)/float64(b.N), "cpu-ms/op")
+	b.ReportMetric(float64(procstat.Self()-cpu0)/float64(time.Millisecond)/float64(b.N), "cpu-ms/op")
 }
 
 func postJSON(hc *http.Client, url string, body []byte) error {

@@ -517,7 +517,7 @@ func (r *recorder) phase(name string, offered float64, elapsed time.Duration, sr
 // closedLoop runs o.clients callers back to back for o.duration.
 func closedLoop(o options, call func(context.Context) (string, error), srv *child) phase {
 	var rec recorder
-	self0 := selfCPU()
+	self0 := procstat.Self()
 	server0, serverOK := srv.cpu()
 	_, elapsed := backToBack(o, func() {
 		t0 := time.Now()
@@ -528,7 +528,7 @@ func closedLoop(o options, call func(context.Context) (string, error), srv *chil
 	})
 	p := rec.phase("capacity (closed loop)", 0, elapsed, srv)
 	if p.OK > 0 {
-		p.ClientCPUms = perCall(selfCPU()-self0, p.OK)
+		p.ClientCPUms = perCall(procstat.Self()-self0, p.OK)
 		if server1, ok := srv.cpu(); ok && serverOK && server1 > server0 {
 			p.ServerCPUms = perCall(server1-server0, p.OK)
 		}
@@ -542,12 +542,12 @@ func inProcess(o options, req *kinchainv1.AnalyzeCaptureRequest) reference {
 	eng := engine.New(engine.Config{})
 	ctx := context.Background()
 	_, _ = eng.Analyze(ctx, req) // warm up
-	cpu0 := selfCPU()
+	cpu0 := procstat.Self()
 	calls, elapsed := backToBack(o, func() { _, _ = eng.Analyze(ctx, req) })
 	if calls == 0 {
 		return reference{}
 	}
-	return reference{Calls: calls, PerSecond: float64(calls) / elapsed.Seconds(), CPUms: perCall(selfCPU()-cpu0, calls)}
+	return reference{Calls: calls, PerSecond: float64(calls) / elapsed.Seconds(), CPUms: perCall(procstat.Self()-cpu0, calls)}
 }
 
 // backToBack calls f from o.clients goroutines, each call after the
@@ -581,15 +581,6 @@ func backToBack(o options, f func()) (int, time.Duration) {
 
 func perCall(d time.Duration, n int) float64 {
 	return float64(d) / float64(time.Millisecond) / float64(n)
-}
-
-// selfCPU is this process's user + system CPU time so far.
-func selfCPU() time.Duration {
-	var ru syscall.Rusage
-	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
-		return 0
-	}
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
 // cpu is the server process's CPU time so far; false without a child

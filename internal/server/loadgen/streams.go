@@ -18,6 +18,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	kinchainv1 "github.com/kinchain/kinchain/api/kinchain/v1"
+	"github.com/kinchain/kinchain/internal/procstat"
 	"github.com/kinchain/kinchain/internal/stream"
 	"github.com/kinchain/kinchain/internal/synth"
 )
@@ -156,7 +157,7 @@ func runStreams(o options, out io.Writer) error {
 		rep.Server = fmt.Sprintf("child process %d (%s), -max-streams %d", srv.cmd.Process.Pid, srv.how, o.streams)
 	}
 	results := make([]streamResult, o.streams)
-	self0 := selfCPU()
+	self0 := procstat.Self()
 	server0, serverOK := srv.cpu()
 	start := time.Now()
 	// The steady window: every stream is open, the rings have filled
@@ -192,7 +193,7 @@ func runStreams(o options, out io.Writer) error {
 	wall := time.Since(start)
 	streamSeconds := float64(o.streams) * sess.seconds
 	rep.WallSeconds = wall.Seconds()
-	rep.ClientCPUmsPerSec = float64(selfCPU()-self0) / float64(time.Millisecond) / streamSeconds
+	rep.ClientCPUmsPerSec = float64(procstat.Self()-self0) / float64(time.Millisecond) / streamSeconds
 	if srv != nil {
 		if server1, ok := srv.cpu(); ok && serverOK && server1 > server0 {
 			rep.ServerCPUmsPerSec = float64(server1-server0) / float64(time.Millisecond) / streamSeconds
