@@ -12,10 +12,12 @@ import (
 // TestSensorRanges: fused tracks are checked against the configured
 // sensor ranges. The model golfer's raw club gyroscope turns faster than
 // 2000 °/s on some axis and its accelerometer reads more than 16 g, the
-// defaults; the rule is "a reading at 99 % of the range or more"
+// defaults (the widest common consumer IMU full scales: common practice,
+// no source); the rule is "a reading at 99 % of the range or more"
 // (DEVELOPERS.md, Fusion), so the expected findings follow from the
-// readings themselves: saturation and clipping at the defaults, neither
-// once the options give a club sensor's wider ranges.
+// readings themselves, computed here from the capture: saturation and
+// clipping at the defaults, neither once the options give a club
+// sensor's wider ranges (4000 °/s and 200 g, invented for the test).
 func TestSensorRanges(t *testing.T) {
 	c, _, err := synth.Generate(synth.Config{IMU: true, OmitQuaternions: true, Segments: []kinchainv1.Segment{
 		kinchainv1.Segment_SEGMENT_PELVIS, kinchainv1.Segment_SEGMENT_THORAX, kinchainv1.Segment_SEGMENT_CLUB,

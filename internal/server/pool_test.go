@@ -14,7 +14,8 @@ import (
 
 // TestSizeClass: every length gets a class at least as large and at most
 // 25 % larger (from the smallest class up), and a class's size maps back
-// to that class, so put finds the class of a slice from Get.
+// to that class, so put finds the class of a slice from Get. These are
+// properties of our own size classes; no outside source applies.
 func TestSizeClass(t *testing.T) {
 	smallest := 4 << minPoolShift
 	for n := 1; n <= 7<<maxPoolShift; n += 1 + n/97 {
